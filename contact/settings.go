@@ -1,0 +1,27 @@
+package contact
+
+// SolverSettings tune the per-step interior-point solve. The zero value
+// selects the defaults documented on each field.
+type SolverSettings struct {
+	// Tolerance on the complementarity and feasibility residuals
+	// (default 1e-10).
+	Tolerance float64
+	// MaxIterations bounds the interior-point iterations (default 60).
+	MaxIterations int
+	// Smoothing is the relaxed-complementarity parameter κ at which the
+	// solve stops: λ∘y = κ e instead of 0. Zero asks for the exact solution
+	// to Tolerance; larger values give smooth gradients through
+	// touch-down and stick/slip (default 0).
+	Smoothing float64
+}
+
+// WithDefaults returns s with zero fields replaced by their defaults.
+func (s SolverSettings) WithDefaults() SolverSettings {
+	if s.Tolerance == 0 {
+		s.Tolerance = 1e-10
+	}
+	if s.MaxIterations == 0 {
+		s.MaxIterations = 60
+	}
+	return s
+}
