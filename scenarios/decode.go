@@ -315,7 +315,7 @@ func (d *decoder) direction(n *yaml.Node, path string) r3.Vec {
 	if l == 0 || math.IsInf(l, 0) {
 		d.fail(n, path, "must be a non-zero direction [x, y, z]")
 	}
-	if l != 1 {
+	if math.Abs(l-1) > unitSlack {
 		v = r3.Scale(1/l, v)
 	}
 	return v
@@ -325,6 +325,11 @@ func (d *decoder) direction(n *yaml.Node, path string) r3.Vec {
 // and still be normalised rather than rejected.
 const quatTolerance = 1e-3
 
+// unitSlack is the rounding error of a normalised vector or quaternion's
+// length. Lengths that close to 1 are left alone, so that writing a model
+// and reading it back does not change its last bits.
+const unitSlack = 1e-15
+
 // quat returns a unit quaternion written [w, x, y, z].
 func (d *decoder) quat(n *yaml.Node, path string) contact.Quat {
 	v := d.floats(n, path, 4, "a quaternion [w, x, y, z]")
@@ -333,7 +338,7 @@ func (d *decoder) quat(n *yaml.Node, path string) contact.Quat {
 	if math.Abs(l-1) > quatTolerance {
 		d.fail(n, path, "quaternion [w, x, y, z] must have unit length; its length is %.6g (lengths within %g of 1 are normalised)", l, quatTolerance)
 	}
-	if l != 1 {
+	if math.Abs(l-1) > unitSlack {
 		q = q.Normalize()
 	}
 	return q

@@ -243,7 +243,7 @@ func (d *decoder) shape(f *fields, static bool) contact.Shape {
 			e := d.vec3(v, f.sub(key))
 			for i, x := range []float64{e.X, e.Y, e.Z} {
 				if x <= 0 {
-					d.fail(v, fmt.Sprintf("%s[%d]", f.sub(key), i), "box size [x, y, z] holds the full extents, each > 0 m; got %g", x)
+					d.fail(v.Content[i], fmt.Sprintf("%s[%d]", f.sub(key), i), "box size [x, y, z] holds the full extents, each > 0 m; got %g", x)
 				}
 			}
 			s.HalfExtents = r3.Scale(0.5, e)
@@ -277,7 +277,8 @@ func rotationTo(n r3.Vec) contact.Quat {
 		return contact.Quat{X: 1} // half turn about x
 	}
 	// q = (1 + z·n, z × n) normalised is the half-way rotation.
-	return contact.Quat{W: 1 + n.Z, X: -n.Y, Y: n.X}.Normalize()
+	// Adding 0 turns −0 into +0, which a scene file cannot tell apart.
+	return contact.Quat{W: 1 + n.Z, X: 0 - n.Y, Y: n.X + 0}.Normalize()
 }
 
 // uniqueName reads a body or static name and checks it is new.

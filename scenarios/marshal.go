@@ -39,10 +39,10 @@ func Marshal(s *Scene) ([]byte, error) {
 			st := &m.Static[i]
 			e := mapNode()
 			add(e, "name", str(st.Name))
+			shapeInto(e, &st.Shape)
 			if st.Material != "" {
 				add(e, "material", str(st.Material))
 			}
-			shapeInto(e, &st.Shape)
 			seq.Content = append(seq.Content, e)
 		}
 		add(root, "static", seq)
@@ -198,9 +198,12 @@ func shapeInto(e *yaml.Node, s *contact.Shape) {
 func poseNode(p contact.Pose) *yaml.Node {
 	n := mapNode()
 	n.Style = yaml.FlowStyle
-	add(n, "position", vec(p.Pos))
-	q := p.Rot
-	add(n, "quat", floats(q.W, q.X, q.Y, q.Z))
+	if p.Pos != (r3.Vec{}) {
+		add(n, "position", vec(p.Pos))
+	}
+	if q := p.Rot; q != contact.IdentityQuat {
+		add(n, "quat", floats(q.W, q.X, q.Y, q.Z))
+	}
 	return n
 }
 
@@ -313,6 +316,9 @@ func str(s string) *yaml.Node { return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!
 
 // num writes the shortest decimal that reads back to exactly f.
 func num(f float64) *yaml.Node {
+	if f == 0 {
+		f = 0 // −0 would read back as the integer 0 anyway
+	}
 	return &yaml.Node{Kind: yaml.ScalarNode, Value: strconv.FormatFloat(f, 'g', -1, 64)}
 }
 
