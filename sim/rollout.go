@@ -55,6 +55,7 @@ func (s *Sim) Record(scene []byte, progress func(step int)) (*Run, error) {
 		}
 	}
 	record()
+	lastSig := s.contactSignature()
 	var err error
 	for s.step < steps {
 		if err = s.Step(); err != nil {
@@ -65,9 +66,13 @@ func (s *Sim) Record(scene []byte, progress func(step int)) (*Run, error) {
 		if st.Residual > run.Stats.MaxResidual {
 			run.Stats.MaxResidual = st.Residual
 		}
-		if s.step%set.FrameEvery == 0 {
+		// Frames are decimated, but a step whose contact states changed is
+		// always recorded, so no touch-down or stick/slip event is lost.
+		sig := s.contactSignature()
+		if s.step%set.FrameEvery == 0 || sig != lastSig {
 			record()
 		}
+		lastSig = sig
 		if progress != nil && s.step%100 == 0 {
 			progress(s.step)
 		}
@@ -79,4 +84,26 @@ func (s *Sim) Record(scene []byte, progress func(step int)) (*Run, error) {
 		run.Stats.SolverIterMax = iters[len(iters)-1]
 	}
 	return run, err
+}
+
+// contactSignature hashes the active contacts and their states (FNV-1a), to
+// notice steps where the contact mode changed.
+func (s *Sim) contactSignature() uint64 {
+	h := uint64(14695981039346656037)
+	mix := func(x uint64) {
+		h ^= x
+		h *= 1099511628211
+	}
+	for i := range s.contacts {
+		c := &s.contacts[i]
+		st := c.State()
+		if st == Separating {
+			continue
+		}
+		mix(uint64(c.A + 1))
+		mix(uint64(c.B + 1))
+		mix(uint64(c.Point.Feature))
+		mix(uint64(st))
+	}
+	return h
 }

@@ -434,7 +434,7 @@ func (r *Run) readStates(path string) error {
 		}
 	}
 	vals := make([]float64, len(want))
-	for step := 0; ; step++ {
+	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
 			return nil
@@ -447,7 +447,7 @@ func (r *Run) readStates(path string) error {
 				return err
 			}
 		}
-		fr := Frame{Step: step, T: vals[0], Bodies: make([]BodyFrame, len(r.BodyNames)), Joints: make([]JointFrame, len(r.JointNames))}
+		fr := Frame{Step: int(math.Round(vals[0] / r.TimeStep)), T: vals[0], Bodies: make([]BodyFrame, len(r.BodyNames)), Joints: make([]JointFrame, len(r.JointNames))}
 		for b := range fr.Bodies {
 			fr.Bodies[b] = bodyFromValues(vals[1+13*b : 14+13*b])
 		}
