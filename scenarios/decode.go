@@ -26,6 +26,7 @@ type decoder struct {
 	origin     map[*yaml.Node]string
 	overlapTol float64
 	warnings   []Warning
+	visits     int
 }
 
 // fail raises an *Error located at n.
@@ -100,8 +101,16 @@ func (d *decoder) yamlError(err error) {
 	panic(e)
 }
 
+// maxVisits bounds the nodes the decoder visits. Aliases let a small file
+// stand for a huge tree; real scenes stay far below this.
+const maxVisits = 1_000_000
+
 // resolve follows aliases to the node they stand for.
 func (d *decoder) resolve(n *yaml.Node, field string) *yaml.Node {
+	d.visits++
+	if d.visits > maxVisits {
+		d.fail(n, field, "scene too large: more than %d values after expanding aliases", maxVisits)
+	}
 	for i := 0; n != nil && n.Kind == yaml.AliasNode; i++ {
 		if i > 64 || n.Alias == nil {
 			d.fail(n, field, "alias does not resolve")

@@ -113,6 +113,22 @@ func (d *decoder) overlaps(m *sim.Model, bodiesNode *yaml.Node) {
 			Msg: fmt.Sprintf("overlaps %s by %.3g m at the start; contact correction will push them apart", other, depth),
 		})
 	}
+	// Bounding boxes first, so that only bodies near each other are
+	// collided shape by shape.
+	boxes := make([]r3.Box, len(m.Bodies))
+	for i := range m.Bodies {
+		b := &m.Bodies[i]
+		boxes[i] = r3.Box{Min: r3.Vec{X: math.Inf(1), Y: math.Inf(1), Z: math.Inf(1)}, Max: r3.Vec{X: math.Inf(-1), Y: math.Inf(-1), Z: math.Inf(-1)}}
+		for k := range b.Shapes {
+			s := &b.Shapes[k]
+			bb := contact.Bounds(s, poses[i].Mul(s.Local), 0)
+			boxes[i].Min = r3.Vec{X: math.Min(boxes[i].Min.X, bb.Min.X), Y: math.Min(boxes[i].Min.Y, bb.Min.Y), Z: math.Min(boxes[i].Min.Z, bb.Min.Z)}
+			boxes[i].Max = r3.Vec{X: math.Max(boxes[i].Max.X, bb.Max.X), Y: math.Max(boxes[i].Max.Y, bb.Max.Y), Z: math.Max(boxes[i].Max.Z, bb.Max.Z)}
+		}
+	}
+	apart := func(a, b r3.Box) bool {
+		return a.Max.X < b.Min.X || b.Max.X < a.Min.X || a.Max.Y < b.Min.Y || b.Max.Y < a.Min.Y || a.Max.Z < b.Min.Z || b.Max.Z < a.Min.Z
+	}
 	for i := range m.Bodies {
 		bi := &m.Bodies[i]
 		for _, st := range m.Static {
@@ -125,7 +141,7 @@ func (d *decoder) overlaps(m *sim.Model, bodiesNode *yaml.Node) {
 		}
 		for j := i + 1; j < len(m.Bodies); j++ {
 			bj := &m.Bodies[j]
-			if bj.Joint.Parent == i || bi.Joint.Parent == j {
+			if bj.Joint.Parent == i || bi.Joint.Parent == j || apart(boxes[i], boxes[j]) {
 				continue
 			}
 			depth := 0.0
