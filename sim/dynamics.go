@@ -170,12 +170,17 @@ func (k *kinematics) update(m *Model, lay *layout, q, v []float64) {
 		var zero r3.Vec
 		switch b.Joint.Kind {
 		case Free:
+			// Angular coordinates about the body axes; linear coordinates
+			// are the world velocity of the body-frame origin, so their
+			// columns are constant world translations. Integrating
+			// q⁺ = q ⊕ h v⁺ then moves every point exactly as J(q) v⁺
+			// predicts to first order.
 			col(0, r3.Vec{X: 1}, zero)
 			col(1, r3.Vec{Y: 1}, zero)
 			col(2, r3.Vec{Z: 1}, zero)
-			col(3, zero, r3.Vec{X: 1})
-			col(4, zero, r3.Vec{Y: 1})
-			col(5, zero, r3.Vec{Z: 1})
+			k.s[bl.vOff+3] = motion{v: r3.Vec{X: 1}}
+			k.s[bl.vOff+4] = motion{v: r3.Vec{Y: 1}}
+			k.s[bl.vOff+5] = motion{v: r3.Vec{Z: 1}}
 		case Ball:
 			col(0, r3.Vec{X: 1}, zero)
 			col(1, r3.Vec{Y: 1}, zero)
@@ -251,13 +256,20 @@ func (k *kinematics) bias(m *Model, lay *layout, v []float64, t float64, c []flo
 		} else {
 			pa = motion{v: r3.Scale(-1, g)}
 		}
-		var vj motion
+		// vj is the joint's twist; moving holds the part carried by columns
+		// fixed in the child body, whose rate is vel ×ₘ S (Featherstone
+		// §3.5). The free joint's world-fixed linear columns do not move.
+		var vj, moving motion
 		for d := 0; d < bl.nv; d++ {
-			vj = vj.add(k.s[bl.vOff+d].scale(v[bl.vOff+d]))
+			x := k.s[bl.vOff+d].scale(v[bl.vOff+d])
+			vj = vj.add(x)
+			if !(m.Bodies[i].Joint.Kind == Free && d >= 3) {
+				moving = moving.add(x)
+			}
 		}
 		vel := pv.add(vj)
 		k.bvel[i] = vel
-		k.acc[i] = pa.add(vel.crossM(vj))
+		k.acc[i] = pa.add(vel.crossM(moving))
 		k.frc[i] = k.in[i].apply(k.acc[i]).add(vel.crossF(k.in[i].apply(vel)))
 	}
 	for li := range m.Loads {

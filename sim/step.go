@@ -215,7 +215,7 @@ func (s *Sim) Reset() {
 			rot = rot.Normalize()
 			copy(q, []float64{p.Pos.X, p.Pos.Y, p.Pos.Z, rot.W, rot.X, rot.Y, rot.Z})
 			w := rot.InvRotate(b.Start.Angular)
-			l := rot.InvRotate(b.Start.Linear)
+			l := b.Start.Linear
 			copy(v, []float64{w.X, w.Y, w.Z, l.X, l.Y, l.Z})
 		case Ball:
 			copy(q, []float64{1, 0, 0, 0})
@@ -586,18 +586,12 @@ func (s *Sim) integrate() {
 		v := s.v[bl.vOff : bl.vOff+bl.nv]
 		switch s.model.Bodies[i].Joint.Kind {
 		case Free:
+			q[0] += h * v[3]
+			q[1] += h * v[4]
+			q[2] += h * v[5]
 			rot := contact.Quat{W: q[3], X: q[4], Y: q[5], Z: q[6]}
-			dp := rot.Rotate(r3.Vec{X: v[3], Y: v[4], Z: v[5]})
-			q[0] += h * dp.X
-			q[1] += h * dp.Y
-			q[2] += h * dp.Z
-			next := rot.Mul(contact.QuatExp(r3.Scale(h, r3.Vec{X: v[0], Y: v[1], Z: v[2]}))).Normalize()
-			q[3], q[4], q[5], q[6] = next.W, next.X, next.Y, next.Z
-			// The origin moved at the constant world velocity dp over the
-			// step; re-express it in the rotated body frame. (ω is along
-			// its own rotation axis and needs no change.)
-			lin := next.InvRotate(dp)
-			v[3], v[4], v[5] = lin.X, lin.Y, lin.Z
+			rot = rot.Mul(contact.QuatExp(r3.Scale(h, r3.Vec{X: v[0], Y: v[1], Z: v[2]}))).Normalize()
+			q[3], q[4], q[5], q[6] = rot.W, rot.X, rot.Y, rot.Z
 		case Ball:
 			rot := contact.Quat{W: q[0], X: q[1], Y: q[2], Z: q[3]}
 			rot = rot.Mul(contact.QuatExp(r3.Scale(h, r3.Vec{X: v[0], Y: v[1], Z: v[2]}))).Normalize()
