@@ -94,10 +94,12 @@ func (d *decoder) parse(src []byte) (root *yaml.Node) {
 // yamlError raises a syntax error from the YAML parser, with its line.
 func (d *decoder) yamlError(err error) {
 	msg := strings.TrimPrefix(err.Error(), "yaml: ")
-	e := &Error{File: d.file, Msg: "not valid YAML: " + msg}
-	if m := yamlLine.FindStringSubmatch(msg); m != nil {
-		e.Line, _ = strconv.Atoi(m[1])
+	e := &Error{File: d.file}
+	if m := yamlLine.FindStringSubmatchIndex(msg); m != nil && m[0] == 0 {
+		e.Line, _ = strconv.Atoi(msg[m[2]:m[3]])
+		msg = strings.TrimPrefix(msg[m[1]:], ": ")
 	}
+	e.Msg = "not valid YAML: " + msg
 	panic(e)
 }
 

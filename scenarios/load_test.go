@@ -624,3 +624,36 @@ func TestDocsMentionEveryField(t *testing.T) {
 		}
 	}
 }
+
+func TestLoadFile(t *testing.T) {
+	path := t.TempDir() + "/crate.yaml"
+	src, _, _ := Builtin("crate-push")
+	if err := os.WriteFile(path, src, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	s, err := LoadFile(path, "loads.0.force=[80, 0, 0]")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := s.Model.Loads[0].Force; f != (r3.Vec{X: 80}) {
+		t.Errorf("force %v, want the override's 80 N", f)
+	}
+	if _, err := LoadFile(path+".missing"); err == nil {
+		t.Error("missing file: no error")
+	}
+	_, err = LoadFile(path, "settings.time_step=0")
+	if err == nil || err.Error() != path+": --set settings.time_step=0: settings.time_step: must be > 0 s, got 0" {
+		t.Errorf("error %v", err)
+	}
+}
+
+func BenchmarkLoad(b *testing.B) {
+	src := []byte(richScene)
+	b.ReportAllocs()
+	for b.Loop() {
+		var l Loader
+		if _, err := l.Load(src, "rich.yaml"); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
