@@ -638,7 +638,7 @@ func TestLoadFile(t *testing.T) {
 	if f := s.Model.Loads[0].Force; f != (r3.Vec{X: 80}) {
 		t.Errorf("force %v, want the override's 80 N", f)
 	}
-	if _, err := LoadFile(path+".missing"); err == nil {
+	if _, err := LoadFile(path + ".missing"); err == nil {
 		t.Error("missing file: no error")
 	}
 	_, err = LoadFile(path, "settings.time_step=0")
