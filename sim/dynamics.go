@@ -247,6 +247,12 @@ func (k *kinematics) massMatrix(m *Model, lay *layout, mass []float64) {
 // the last update and the joint velocities v. It writes one entry per
 // velocity coordinate into c.
 func (k *kinematics) bias(m *Model, lay *layout, v []float64, t float64, c []float64) {
+	k.inverseDynamics(m, lay, v, nil, t, c)
+}
+
+// inverseDynamics computes M(q) a + c(q, v) − τ_ext, the joint efforts that
+// produce joint accelerations a (nil: zero) by recursive Newton–Euler.
+func (k *kinematics) inverseDynamics(m *Model, lay *layout, v, a []float64, t float64, c []float64) {
 	g := m.Gravity
 	for i := range m.Bodies {
 		bl := &lay.bodies[i]
@@ -270,6 +276,11 @@ func (k *kinematics) bias(m *Model, lay *layout, v []float64, t float64, c []flo
 		vel := pv.add(vj)
 		k.bvel[i] = vel
 		k.acc[i] = pa.add(vel.crossM(moving))
+		if a != nil {
+			for d := 0; d < bl.nv; d++ {
+				k.acc[i] = k.acc[i].add(k.s[bl.vOff+d].scale(a[bl.vOff+d]))
+			}
+		}
 		k.frc[i] = k.in[i].apply(k.acc[i]).add(vel.crossF(k.in[i].apply(vel)))
 	}
 	for li := range m.Loads {
@@ -282,6 +293,9 @@ func (k *kinematics) bias(m *Model, lay *layout, v []float64, t float64, c []flo
 		bl := &lay.bodies[i]
 		for d := 0; d < bl.nv; d++ {
 			c[bl.vOff+d] = k.s[bl.vOff+d].dot(k.frc[i])
+		}
+		if arm := m.Bodies[i].Joint.Armature; a != nil && arm != 0 && bl.nv == 1 {
+			c[bl.vOff] += arm * a[bl.vOff]
 		}
 		if p := bl.parent; p >= 0 {
 			k.frc[p] = k.frc[p].add(k.frc[i])

@@ -21,6 +21,10 @@ type Model struct {
 	Static    []StaticShape
 	Materials Materials
 	Loads     []Load
+	// Actuators drive single-DOF joints; Controller, if not nil, commands
+	// them from the state (one effort per actuator, in Actuators order).
+	Actuators  []Actuator
+	Controller Controller
 }
 
 // Body is one rigid body. Its frame is the one its shapes, centre of mass and

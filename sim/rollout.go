@@ -40,7 +40,8 @@ func (s *Sim) Record(scene []byte, progress func(step int)) (*Run, error) {
 		}
 		for k, i := range joints {
 			bl := &s.lay.bodies[i]
-			f.Joints[k] = JointFrame{Q: s.q[bl.qOff], QD: s.v[bl.vOff], Tau: s.tau[bl.vOff], Effort: s.tau[bl.vOff]}
+			applied, cmd := s.AppliedEffort(bl.vOff)
+			f.Joints[k] = JointFrame{Q: s.q[bl.qOff], QD: s.v[bl.vOff], Tau: cmd, Effort: applied}
 		}
 		frame := len(run.Frames)
 		run.Frames = append(run.Frames, f)

@@ -104,7 +104,12 @@ type Sim struct {
 
 	mass, chol         []float64
 	c, tau, rhs, vfree []float64
-	damp               []float64
+	damp               []float64 // viscous joint damping per velocity coordinate
+	kp, kd             []float64 // controller stiffness and damping per coordinate, this step
+	tauCmd, tauAct     []float64 // actuator effort per coordinate this step: commanded, applied
+	ctlIn              ControlInput
+	ctlOut             ControlOutput
+	limits             []limitRow
 
 	geoms     []geom
 	boxes     []r3.Box
@@ -147,12 +152,94 @@ func New(m *Model, set Settings) (*Sim, error) {
 		rhs:    make([]float64, lay.nv),
 		vfree:  make([]float64, lay.nv),
 		damp:   make([]float64, lay.nv),
+		kp:     make([]float64, lay.nv),
+		kd:     make([]float64, lay.nv),
+		tauCmd: make([]float64, lay.nv),
+		tauAct: make([]float64, lay.nv),
 		solver: contact.NewSolver(),
+	}
+	if err := s.compileActuators(); err != nil {
+		return nil, err
 	}
 	s.compileGeometry()
 	s.Reset()
 	return s, nil
 }
+
+func (s *Sim) compileActuators() error {
+	m := s.model
+	n := len(m.Actuators)
+	for _, a := range m.Actuators {
+		if a.Body < 0 || a.Body >= len(m.Bodies) {
+			return fmt.Errorf("actuator %q: body index %d out of range", a.Name, a.Body)
+		}
+		if k := m.Bodies[a.Body].Joint.Kind; k != Revolute && k != Prismatic {
+			return fmt.Errorf("actuator %q: joint of body %q is %s; actuators drive revolute or prismatic joints", a.Name, m.Bodies[a.Body].Name, k)
+		}
+		if a.EffortLimit < 0 {
+			return fmt.Errorf("actuator %q: effort limit %g is negative", a.Name, a.EffortLimit)
+		}
+	}
+	s.ctlIn = ControlInput{Q: make([]float64, n), QD: make([]float64, n)}
+	s.ctlOut = ControlOutput{Effort: make([]float64, n), Stiffness: make([]float64, n), Damping: make([]float64, n)}
+	return nil
+}
+
+// limitRow is an active joint limit: a one-sided row of the contact problem.
+type limitRow struct {
+	body  int
+	dof   int
+	sign  float64 // +1: lower limit (q − lower ≥ 0); −1: upper limit
+	gap   float64
+	force float64 // solved impulse
+}
+
+// control evaluates the controller, actuator limits and joint friction into
+// tau (explicit effort), kp and kd (implicit stiffness and damping).
+func (s *Sim) control() {
+	m := s.model
+	for i := range s.tau {
+		s.tau[i], s.kp[i], s.kd[i], s.tauCmd[i], s.tauAct[i] = 0, 0, 0, 0, 0
+	}
+	if m.Controller != nil && len(m.Actuators) > 0 {
+		in, out := &s.ctlIn, &s.ctlOut
+		in.T = s.t
+		for i, a := range m.Actuators {
+			d := s.lay.bodies[a.Body].vOff
+			in.Q[i] = s.q[s.lay.bodies[a.Body].qOff]
+			in.QD[i] = s.v[d]
+			out.Effort[i], out.Stiffness[i], out.Damping[i] = 0, 0, 0
+		}
+		m.Controller.Command(in, out)
+		for i, a := range m.Actuators {
+			d := s.lay.bodies[a.Body].vOff
+			e := out.Effort[i]
+			s.tauCmd[d] += e
+			if lim := a.EffortLimit; lim > 0 && math.Abs(e) > lim {
+				// Saturated: the effort no longer depends on the state.
+				s.tau[d] += math.Copysign(lim, e)
+				s.tauAct[d] += math.Copysign(lim, e)
+				continue
+			}
+			s.tau[d] += e
+			s.tauAct[d] += e
+			s.kp[d] += out.Stiffness[i]
+			s.kd[d] += out.Damping[i]
+		}
+	}
+	for i := range m.Bodies {
+		if f := m.Bodies[i].Joint.Friction; f != 0 {
+			d := s.lay.bodies[i].vOff
+			e, damp := jointFriction(f, s.v[d])
+			s.tau[d] += e
+			s.kd[d] += damp
+		}
+	}
+}
+
+// AppliedEffort returns the actuator effort at velocity coordinate d in the
+// last step, after effort limits, and the commanded one.
+func (s *Sim) AppliedEffort(d int) (applied, commanded float64) { return s.tauAct[d], s.tauCmd[d] }
 
 func (s *Sim) compileGeometry() {
 	m := s.model
@@ -310,13 +397,15 @@ func (s *Sim) Step() error {
 	m, lay, kin := s.model, s.lay, s.kin
 	h := s.set.TimeStep
 
+	s.control()
 	kin.massMatrix(m, lay, s.mass)
 	copy(s.chol, s.mass)
 	for t := range lay.trees {
 		tr := &lay.trees[t]
 		blk := s.chol[tr.massOffset : tr.massOffset+tr.nv*tr.nv]
 		for d := 0; d < tr.nv; d++ {
-			blk[d*tr.nv+d] += h * s.damp[tr.vOff+d]
+			i := tr.vOff + d
+			blk[d*tr.nv+d] += h*(s.damp[i]+s.kd[i]) + h*h*s.kp[i]
 		}
 		if !cholesky(blk, tr.nv) {
 			return s.stepError(fmt.Errorf("mass matrix of the tree rooted at body %q is not positive definite", m.Bodies[tr.bodies[0]].Name))
@@ -335,7 +424,7 @@ func (s *Sim) Step() error {
 		}
 		kin.bias(m, lay, s.rhs, s.t, s.c)
 		for i := range s.rhs {
-			s.rhs[i] = h * (s.tau[i] - s.c[i] - s.damp[i]*s.v[i])
+			s.rhs[i] = h * (s.tau[i] - s.c[i] - (s.damp[i]+h*s.kp[i])*s.v[i])
 		}
 		s.solveMass(s.rhs)
 		for i := range s.vfree {
@@ -344,7 +433,8 @@ func (s *Sim) Step() error {
 	}
 
 	s.collide()
-	if len(s.contacts) == 0 {
+	s.findLimits()
+	if len(s.contacts) == 0 && len(s.limits) == 0 {
 		copy(s.v, s.vfree)
 		s.lastStats = contact.SolveStats{}
 	} else if err := s.solveContacts(); err != nil {
@@ -449,7 +539,7 @@ func (s *Sim) treeOf(b int) int {
 func (s *Sim) solveContacts() error {
 	nv := s.lay.nv
 	nc := len(s.contacts)
-	n := 3 * nc
+	n := 3*nc + len(s.limits)
 	h := s.set.TimeStep
 	s.jac = grow(s.jac, n*nv)
 	s.y = grow(s.y, n*nv)
@@ -476,12 +566,7 @@ func (s *Sim) solveContacts() error {
 		// Normal velocity target: close at most the gap in one step, remove
 		// a bounded share of any penetration, and bounce by Newton's law.
 		gap := c.Point.Gap
-		var target float64
-		if gap < 0 {
-			target = math.Min(-s.set.CorrectionRate*gap/h, s.set.MaxCorrection)
-		} else {
-			target = -gap / h
-		}
+		target := s.gapTarget(gap)
 		var pre float64
 		for _, b := range [2]int{c.A, c.B} {
 			if b >= 0 {
@@ -498,6 +583,13 @@ func (s *Sim) solveContacts() error {
 		}
 		c.Target = target
 		s.prob.Mu[k] = c.Friction
+	}
+	for k := range s.limits {
+		l := &s.limits[k]
+		r := 3*nc + k
+		s.jac[r*nv+l.dof] = l.sign
+		t := s.treeOf(l.body)
+		s.rowTrees[r] = [2]int{t, t}
 	}
 	// Y = A⁻¹ Jᵀ, row by row, solving only in the trees a row touches.
 	copy(s.y, s.jac)
@@ -537,7 +629,10 @@ func (s *Sim) solveContacts() error {
 		for d, x := range ji {
 			b += x * s.vfree[d]
 		}
-		if i%3 == 0 {
+		switch {
+		case i >= 3*nc:
+			b -= s.gapTarget(s.limits[i-3*nc].gap)
+		case i%3 == 0:
 			b -= s.contacts[i/3].Target
 		}
 		s.prob.B[i] = b
@@ -574,7 +669,39 @@ func (s *Sim) solveContacts() error {
 		copy(c.Velocity[:], s.u[3*k:3*k+3])
 		c.Velocity[0] += c.Target
 	}
+	for k := range s.limits {
+		s.limits[k].force = s.lambda[3*nc+k]
+	}
 	return nil
+}
+
+// gapTarget returns the least normal velocity a row may have: it may close
+// a positive gap within the step, and must remove a bounded share of a
+// negative one.
+func (s *Sim) gapTarget(gap float64) float64 {
+	if gap < 0 {
+		return math.Min(-s.set.CorrectionRate*gap/s.set.TimeStep, s.set.MaxCorrection)
+	}
+	return -gap / s.set.TimeStep
+}
+
+// findLimits collects the joint limits within the margin of being reached.
+func (s *Sim) findLimits() {
+	s.limits = s.limits[:0]
+	for i := range s.model.Bodies {
+		j := &s.model.Bodies[i].Joint
+		if !j.Limited {
+			continue
+		}
+		bl := &s.lay.bodies[i]
+		q := s.q[bl.qOff]
+		if gap := q - j.Lower; gap < s.set.Margin {
+			s.limits = append(s.limits, limitRow{body: i, dof: bl.vOff, sign: 1, gap: gap})
+		}
+		if gap := j.Upper - q; gap < s.set.Margin {
+			s.limits = append(s.limits, limitRow{body: i, dof: bl.vOff, sign: -1, gap: gap})
+		}
+	}
 }
 
 // integrate advances q by h v⁺ on each joint's manifold.
