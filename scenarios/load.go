@@ -570,7 +570,7 @@ func (d *decoder) start(f *fields, b *sim.Body, planes map[string]contact.Pose) 
 			if !ok {
 				d.fail(on, g.sub("on"), "%q is not a static plane; a body may rest on: %s", name, strings.Join(sortedKeys(planes), ", "))
 			}
-			var at []float64 = []float64{0, 0}
+			at := []float64{0, 0}
 			if v := g.get("at"); v != nil {
 				at = d.floats(v, g.sub("at"), 2, "a position [x, y] along the plane")
 			}

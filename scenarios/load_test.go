@@ -391,7 +391,7 @@ func TestMassFromDensity(t *testing.T) {
 	for _, c := range cases {
 		s := load(t, "bodies:\n  - {name: x, density: 1100, shapes: "+c.shapes+"}\n")
 		body := s.Model.Bodies[0]
-		if !close(body.Mass, c.mass, 1e-12) {
+		if !approx(body.Mass, c.mass, 1e-12) {
 			t.Errorf("%s: mass %g, handbook %g", c.name, body.Mass, c.mass)
 		}
 		if r3.Norm(r3.Sub(body.COM, c.com)) > 1e-12 {
@@ -407,12 +407,12 @@ func TestMassFromDensity(t *testing.T) {
 	}
 	// Mass given without inertia: the shapes' inertia at that mass.
 	s := load(t, "bodies:\n  - {name: crate, mass: 4, shapes: [{kind: box, size: [0.6, 0.4, 0.3]}]}\n")
-	if I := s.Model.Bodies[0].Inertia; !close(I[0], 4*(b*b+c*c)/12, 1e-12) || !close(I[8], 4*(a*a+b*b)/12, 1e-12) {
+	if I := s.Model.Bodies[0].Inertia; !approx(I[0], 4*(b*b+c*c)/12, 1e-12) || !approx(I[8], 4*(a*a+b*b)/12, 1e-12) {
 		t.Errorf("crate of 4 kg: inertia %v", I)
 	}
 }
 
-func close(x, y, rel float64) bool { return math.Abs(x-y) <= rel*math.Max(math.Abs(x), math.Abs(y)) }
+func approx(x, y, rel float64) bool { return math.Abs(x-y) <= rel*math.Max(math.Abs(x), math.Abs(y)) }
 
 func TestOverrides(t *testing.T) {
 	s, err := LoadBuiltin("crate-slide", "bodies.crate.mass=2.5", "materials.pairs.0.friction=0.3", "settings.duration=2",
@@ -421,7 +421,7 @@ func TestOverrides(t *testing.T) {
 		t.Fatal(err)
 	}
 	m := s.Model
-	if b := m.Bodies[0]; b.Mass != 2.5 || !close(b.Inertia[0], 2.5*(0.16+0.09)/12, 1e-12) {
+	if b := m.Bodies[0]; b.Mass != 2.5 || !approx(b.Inertia[0], 2.5*(0.16+0.09)/12, 1e-12) {
 		t.Errorf("mass %g inertia %v", b.Mass, b.Inertia)
 	}
 	if m.Materials.Pairs[0].Friction != 0.3 || s.Settings.Duration != 2 || m.Gravity.Z != -9.81 {
@@ -655,5 +655,80 @@ func BenchmarkLoad(b *testing.B) {
 		if _, err := l.Load(src, "rich.yaml"); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// TestBuiltinParameters pins the values each built-in scene promises in its
+// description, which tests of the simulator compare with textbook results.
+func TestBuiltinParameters(t *testing.T) {
+	get := func(name string) *sim.Model {
+		s, err := LoadBuiltin(name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return s.Model
+	}
+	g0 := r3.Vec{Z: -sim.StandardGravity} // 3rd CGPM (1901)
+	mu := func(m *sim.Model, i int) sim.PairProps {
+		return m.Materials.Lookup(m.Bodies[i].Material, m.Static[0].Material)
+	}
+	tilt := func(m *sim.Model) float64 {
+		return math.Acos(m.Static[0].Shape.Local.Rot.Rotate(r3.Vec{Z: 1}).Z) * 180 / math.Pi
+	}
+
+	m := get("crate-slide")
+	if m.Gravity != g0 || mu(m, 0).Friction != 0.4 || m.Bodies[0].Start.Linear != (r3.Vec{X: 2}) {
+		t.Errorf("crate-slide: μ %v v0 %v", mu(m, 0), m.Bodies[0].Start.Linear)
+	}
+	m = get("crate-ramp")
+	if a := tilt(m); math.Abs(a-20) > 1e-9 || mu(m, 0).Friction != 0.5 {
+		t.Errorf("crate-ramp: %g°, μ %v", a, mu(m, 0))
+	}
+	m = get("ball-drop")
+	if b := m.Bodies[0]; mu(m, 0).Restitution != 0.75 || b.Shapes[0].Kind != contact.Sphere ||
+		math.Abs(b.Start.Pose.Pos.Z-b.Shapes[0].Radius-1) > 1e-12 || b.Start.Linear != (r3.Vec{}) {
+		t.Errorf("ball-drop: e %v start %v", mu(m, 0), b.Start)
+	}
+	m = get("dough-roll")
+	if b := m.Bodies[0]; mu(m, 0).Friction != 0.3 || b.Start.Linear != (r3.Vec{X: 3}) || b.Start.Angular != (r3.Vec{}) {
+		t.Errorf("dough-roll: μ %v start %v", mu(m, 0), b.Start)
+	}
+	m = get("crate-push")
+	if l := m.Loads; len(l) != 1 || l[0].Force.Z != 0 || l[0].Force.X <= mu(m, 0).Friction*m.Bodies[0].Mass*sim.StandardGravity {
+		t.Errorf("crate-push: loads %+v must be horizontal and beat μmg", l)
+	}
+	m = get("crate-stack")
+	if len(m.Bodies) != 10 {
+		t.Errorf("crate-stack: %d crates", len(m.Bodies))
+	}
+	m = get("spinning-tin")
+	if b := m.Bodies[0]; m.Gravity != (r3.Vec{}) || len(m.Static) != 0 {
+		t.Errorf("spinning-tin: gravity %v, %d static shapes", m.Gravity, len(m.Static))
+	} else {
+		I := b.Inertia
+		w := b.Start.Angular
+		// Three distinct moments; spin mostly about the largest (z), with
+		// a small perturbation about the others.
+		if !(I[0] < I[4] && I[4] < I[8]) || !(w.Z > 10*math.Hypot(w.X, w.Y)) || w.X == 0 || w.Y == 0 {
+			t.Errorf("spinning-tin: moments %v, spin %v", I, w)
+		}
+	}
+	m = get("mixer-balls")
+	if a, b := m.Bodies[0], m.Bodies[1]; m.Gravity != (r3.Vec{}) || a.Mass != b.Mass ||
+		m.Materials.Lookup(a.Material, b.Material) != (sim.PairProps{Friction: 0, Restitution: 1}) ||
+		r3.Add(a.Start.Linear, b.Start.Linear) != (r3.Vec{}) || a.Start.Pose.Pos.Y != b.Start.Pose.Pos.Y {
+		t.Errorf("mixer-balls: %+v %+v", a, b)
+	}
+	m = get("dough-chute")
+	if b := m.Bodies[0]; b.Shapes[0].Kind != contact.Sphere || math.Abs(tilt(m)-20) > 1e-9 {
+		t.Errorf("dough-chute: %v at %g°", b.Shapes[0].Kind, tilt(m))
+	}
+	m = get("tin-tip")
+	tin := m.Bodies[0].Shapes[0]
+	w, h := 2*tin.HalfExtents.X, 2*tin.HalfExtents.Z
+	tan := math.Tan(tilt(m) * math.Pi / 180)
+	// Tips before it slides: w/h < tan θ ≤ μ (textbook statics).
+	if !(w/h < tan && tan <= mu(m, 0).Friction) {
+		t.Errorf("tin-tip: w/h %g, tan θ %g, μ %g", w/h, tan, mu(m, 0).Friction)
 	}
 }
