@@ -7,10 +7,10 @@ type EventKind int
 
 // The contact events.
 const (
-	TouchDown  EventKind = iota // separating or absent → sticking or sliding
-	LiftOff                     // sticking or sliding → separating or absent
-	StickSlip                   // sticking → sliding
-	SlipStick                   // sliding → sticking
+	TouchDown EventKind = iota // separating or absent → sticking or sliding
+	LiftOff                    // sticking or sliding → separating or absent
+	StickSlip                  // sticking → sliding
+	SlipStick                  // sliding → sticking
 )
 
 var eventKindNames = [...]string{"touch-down", "lift-off", "stick→slip", "slip→stick"}
