@@ -4,12 +4,13 @@ package contact
 // selects the defaults documented on each field.
 type SolverSettings struct {
 	// Tolerance on the complementarity and feasibility residuals
-	// (default 1e-10).
+	// (default 1e-10). The residuals are absolute for problems with
+	// ‖B‖∞ ≤ 1 and max W_ii ≥ ‖B‖∞, and scaled beyond (see Solver.Solve).
 	Tolerance float64
 	// MaxIterations bounds the interior-point iterations (default 60).
 	MaxIterations int
-	// Smoothing is the relaxed-complementarity parameter κ at which the
-	// solve stops: λ∘y = κ e instead of 0. Zero asks for the exact solution
+	// Smoothing is the relaxed-complementarity parameter κ (impulse times
+	// velocity) at which the solve stops: λ∘y = κ e instead of 0. Zero asks for the exact solution
 	// to Tolerance; larger values give smooth gradients through
 	// touch-down and stick/slip (default 0).
 	Smoothing float64

@@ -103,6 +103,7 @@ type Solver struct {
 	rhs                []float64
 	wq0                []float64 // per contact: (Ws q)_0, needed for dβ
 	nt                 []ntScaling
+	hx                 [][3][3]float64 // per contact: Arw(ξ)⁻¹Arw(η) at the solution
 
 	// m holds the LU factors of the last interior-point Newton matrix
 	// W + K (K block diagonal, see assemble) and piv its row pivots. It is
@@ -152,6 +153,10 @@ func (s *Solver) resize(n, nc int) {
 		s.nt = make([]ntScaling, nc)
 	}
 	s.nt = s.nt[:nc]
+	if cap(s.hx) < nc {
+		s.hx = make([][3][3]float64, nc)
+	}
+	s.hx = s.hx[:nc]
 }
 
 // load checks p and copies it into the workspaces.

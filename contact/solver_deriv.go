@@ -1,0 +1,173 @@
+package contact
+
+import (
+	"fmt"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
+)
+
+// Derivatives of the solution by implicit differentiation.
+//
+// At the end of a solve the iterate z = (λ, y, β) satisfies F(z, θ) = 0 with
+//
+//	y − W λ − B = 0,
+//	λn yn = κ,  ξ∘η = κ e  (ξ = (μλn, λt), η = (β, yt)),  λ y = κ (unilateral),
+//
+// (κ = Smoothing; with κ = 0 only approximately, at the final gap). Its
+// linearization, with y and β eliminated exactly as in the interior-point
+// Newton step but with the exact coupling Arw(ξ)⁻¹Arw(η) instead of the
+// Nesterov–Todd one, is
+//
+//	(W + K) dλ = −(dB + dW λ + M dμ),
+//
+// where K is block diagonal and M dμ is non-zero only on the tangent rows of
+// contact c: λn [Arw(ξ)⁻¹Arw(η)]_{t,0} dμ_c. The n×n matrix W + K (the reduced
+// F_z) is factored once per solve, on the first derivative call, and reused
+// by every JVP and VJP. Derivatives with respect to W follow from dB_eff =
+// dW λ: the gradient is W̄ = B̄ λᵀ (symmetrize for symmetric perturbations).
+//
+// Frictionless contacts (μ = 0) keep λt = 0; their derivatives with respect
+// to μ and to their tangential B are zero (the one-sided derivative at
+// μ = 0 is not represented).
+
+// factorJacobian forms and factors W + K at the final iterate.
+func (s *Solver) factorJacobian() error {
+	if !s.solved {
+		return ErrNoSolution
+	}
+	if s.jacReady {
+		return nil
+	}
+	for c := range s.nc {
+		if s.mu[c] > 0 {
+			xi, eta := s.cone(c)
+			s.hx[c] = arwCoupling(xi, eta)
+		}
+	}
+	copy(s.jac, s.wd)
+	s.addBarrier(s.jac, func(c int) *[3][3]float64 { return &s.hx[c] })
+	if !lapack64.Getrf(s.general(s.jac), s.jpiv) {
+		// Singular W with rows whose barrier terms vanished (κ = 0 at
+		// redundant contacts): the minimum-norm-like choice of a tiny
+		// diagonal shift keeps the derivative bounded.
+		n := s.n
+		copy(s.jac, s.wd)
+		s.addBarrier(s.jac, func(c int) *[3][3]float64 { return &s.hx[c] })
+		for i := range n {
+			s.jac[i*n+i] += 1e-13 / s.rho
+		}
+		if !lapack64.Getrf(s.general(s.jac), s.jpiv) {
+			return fmt.Errorf("contact: Jacobian of the solution is singular")
+		}
+	}
+	s.jacReady = true
+	return nil
+}
+
+func (s *Solver) checkLen(name string, v []float64, n int, optional bool) error {
+	if optional && v == nil {
+		return nil
+	}
+	if len(v) != n {
+		return fmt.Errorf("contact: %s has length %d, want %d", name, len(v), n)
+	}
+	return nil
+}
+
+// JVP writes into dLambda the directional derivative of the last solution λ
+// along a perturbation (dB, dMu) of the problem: dλ = −(W + K)⁻¹(dB + M dμ).
+// dMu may be nil (no change of friction). A perturbation dW of W enters as
+// dB = dW λ.
+func (s *Solver) JVP(dLambda, dB, dMu []float64) error {
+	if err := s.factorJacobian(); err != nil {
+		return err
+	}
+	if err := s.checkLen("dLambda", dLambda, s.n, false); err != nil {
+		return err
+	}
+	if err := s.checkLen("dB", dB, s.n, false); err != nil {
+		return err
+	}
+	if err := s.checkLen("dMu", dMu, s.nc, true); err != nil {
+		return err
+	}
+	for i := range s.n {
+		dLambda[i] = -dB[i]
+	}
+	for c := range s.nc {
+		i := 3 * c
+		if s.mu[c] == 0 {
+			dLambda[i+1], dLambda[i+2] = 0, 0
+			continue
+		}
+		if dMu != nil {
+			for r := 1; r < 3; r++ {
+				dLambda[i+r] -= s.lam[i] * s.hx[c][r][0] * dMu[c]
+			}
+		}
+	}
+	lapack64.Getrs(blas.NoTrans, s.general(s.jac), blas64.General{Rows: s.n, Cols: 1, Stride: 1, Data: dLambda}, s.jpiv)
+	return nil
+}
+
+// VJP writes into bBar and muBar the gradients of the scalar ⟨lambdaBar, λ⟩
+// with respect to B and μ: B̄ = −(W + K)⁻ᵀ λ̄ and μ̄_c = B̄_tᵀ λn
+// [Arw(ξ)⁻¹Arw(η)]_{t,0}. muBar may be nil. The gradient with respect to W is
+// B̄ λᵀ. lambdaBar is left unchanged.
+func (s *Solver) VJP(bBar, muBar, lambdaBar []float64) error {
+	if err := s.factorJacobian(); err != nil {
+		return err
+	}
+	if err := s.checkLen("bBar", bBar, s.n, false); err != nil {
+		return err
+	}
+	if err := s.checkLen("lambdaBar", lambdaBar, s.n, false); err != nil {
+		return err
+	}
+	if err := s.checkLen("muBar", muBar, s.nc, true); err != nil {
+		return err
+	}
+	copy(bBar, lambdaBar)
+	lapack64.Getrs(blas.Trans, s.general(s.jac), blas64.General{Rows: s.n, Cols: 1, Stride: 1, Data: bBar}, s.jpiv)
+	for i := range bBar {
+		bBar[i] = -bBar[i]
+	}
+	for c := range s.nc {
+		i := 3 * c
+		if muBar != nil {
+			muBar[c] = 0
+		}
+		if s.mu[c] == 0 {
+			// These rows read dλt = 0: B_t does not enter.
+			bBar[i+1], bBar[i+2] = 0, 0
+			continue
+		}
+		if muBar != nil {
+			muBar[c] = s.lam[i] * (bBar[i+1]*s.hx[c][1][0] + bBar[i+2]*s.hx[c][2][0])
+		}
+	}
+	return nil
+}
+
+// ReducedJacobian writes the reduced Jacobian W + K of the optimality
+// conditions at the last solution (see JVP) into dst, a row-major n×n slice,
+// for callers that assemble larger systems.
+func (s *Solver) ReducedJacobian(dst []float64) error {
+	if !s.solved {
+		return ErrNoSolution
+	}
+	if len(dst) != s.n*s.n {
+		return fmt.Errorf("contact: dst has length %d, want %d", len(dst), s.n*s.n)
+	}
+	for c := range s.nc {
+		if s.mu[c] > 0 {
+			xi, eta := s.cone(c)
+			s.hx[c] = arwCoupling(xi, eta)
+		}
+	}
+	copy(dst, s.wd)
+	s.addBarrier(dst, func(c int) *[3][3]float64 { return &s.hx[c] })
+	return nil
+}
