@@ -240,7 +240,7 @@ func (d *decoder) float(n *yaml.Node, path string) float64 {
 	}
 	var f float64
 	if err := n.Decode(&f); err != nil {
-		d.fail(n, path, "must be a number, got %q", n.Value)
+		d.fail(n, path, "must be a finite number; %q is out of range", n.Value)
 	}
 	if math.IsNaN(f) || math.IsInf(f, 0) {
 		d.fail(n, path, "must be a finite number, got %s", n.Value)
