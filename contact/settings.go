@@ -7,6 +7,12 @@ type SolverSettings struct {
 	// (default 1e-10). The residuals are absolute for problems with
 	// ‖B‖∞ ≤ 1 and max W_ii ≥ ‖B‖∞, and scaled beyond (see Solver.Solve).
 	Tolerance float64
+	// VelocityTolerance bounds the natural-map residual
+	// ‖λ − Π_K(λ − ρ ũ)‖∞/ρ (m/s, scaled like velocities), which catches
+	// velocity errors the products miss when impulses are small (default
+	// 1e-9). Below about 1e-10 it can exceed what double precision resolves
+	// for sliding contacts with small impulses.
+	VelocityTolerance float64
 	// MaxIterations bounds the interior-point iterations (default 60).
 	MaxIterations int
 	// Smoothing is the relaxed-complementarity parameter κ (impulse times
@@ -20,6 +26,9 @@ type SolverSettings struct {
 func (s SolverSettings) WithDefaults() SolverSettings {
 	if s.Tolerance == 0 {
 		s.Tolerance = 1e-10
+	}
+	if s.VelocityTolerance == 0 {
+		s.VelocityTolerance = 1e-9
 	}
 	if s.MaxIterations == 0 {
 		s.MaxIterations = 60

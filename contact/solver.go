@@ -44,11 +44,15 @@ type SolveStats struct {
 	// Iterations is the number of interior-point iterations (one
 	// factorization and two solves each).
 	Iterations int
-	// Residual is the stopping residual: with Smoothing = 0 the natural
-	// residual of the exact conditions (see Complementarity), otherwise the
-	// largest violation of the relaxed conditions λ∘y = κ e and of
-	// y = W λ + B. Both are scaled as described on Solve.
+	// Residual is the stopping residual, compared with Tolerance: with
+	// Smoothing = 0 the larger of the natural residual of the exact
+	// conditions (see Complementarity) and of the interior-point pairs'
+	// products; otherwise the largest violation of the relaxed conditions
+	// λ∘y = κ e and of y = W λ + B. All are scaled as described on Solve.
 	Residual float64
+	// VelocityResidual is the natural-map residual in velocity units,
+	// compared with VelocityTolerance when Smoothing = 0 (see Solve).
+	VelocityResidual float64
 	// Complementarity is the natural residual of the exact conditions: the
 	// largest of the cone violations of λ and ũ and of |λᵀũ| per contact
 	// (|λ u| and sign violations per unilateral row), scaled. With
@@ -65,15 +69,17 @@ type SolveStats struct {
 // SolveError reports a solve that did not reach its tolerance. Callers add
 // the step, time and bodies to the message.
 type SolveError struct {
-	Iterations int
-	Residual   float64 // scaled residual reached
-	Tolerance  float64
-	Reason     string
+	Iterations        int
+	Residual          float64 // scaled residual reached
+	Tolerance         float64
+	VelocityResidual  float64 // natural-map residual reached (m/s, scaled)
+	VelocityTolerance float64
+	Reason            string
 }
 
 func (e *SolveError) Error() string {
-	return fmt.Sprintf("contact: interior-point solve did not converge: %s after %d iterations (residual %.3g, tolerance %.3g)",
-		e.Reason, e.Iterations, e.Residual, e.Tolerance)
+	return fmt.Sprintf("contact: interior-point solve did not converge: %s after %d iterations (residual %.3g, tolerance %.3g; velocity residual %.3g, tolerance %.3g)",
+		e.Reason, e.Iterations, e.Residual, e.Tolerance, e.VelocityResidual, e.VelocityTolerance)
 }
 
 // ErrNoSolution is returned by the derivative methods when no successful
@@ -100,6 +106,9 @@ type Solver struct {
 	dlam, dy, dbeta    []float64 // combined (corrector) direction
 	dlamA, dyA, dbetaA []float64 // affine (predictor) direction
 	u, rp              []float64 // u = W λ + B and rp = y − u
+	lamT, yT, betaT    []float64 // trial point of a candidate step
+	uT, rpT            []float64
+	dlamK, dyK, dbetaK []float64 // best candidate direction
 	rhs                []float64
 	wq0                []float64 // per contact: (Ws q)_0, needed for dβ
 	nt                 []ntScaling
@@ -113,6 +122,7 @@ type Solver struct {
 
 	scaleL, scaleU float64 // impulse and velocity scales of the residuals
 	rho            float64 // 1/max W_ii: fallback for rows with W_ii = 0
+	tolRatio       float64 // Tolerance / VelocityTolerance
 
 	// Exact Jacobian of the optimality conditions at the solution, reduced
 	// to λ, factored on first use by the derivative methods.
@@ -138,10 +148,11 @@ func (s *Solver) resize(n, nc int) {
 	s.wd = grow(s.wd, n*n)
 	s.m = grow(s.m, n*n)
 	s.jac = grow(s.jac, n*n)
-	for _, v := range []*[]float64{&s.b, &s.lam, &s.y, &s.dlam, &s.dy, &s.dlamA, &s.dyA, &s.u, &s.rp, &s.rhs} {
+	for _, v := range []*[]float64{&s.b, &s.lam, &s.y, &s.dlam, &s.dy, &s.dlamA, &s.dyA, &s.u, &s.rp, &s.rhs,
+		&s.lamT, &s.yT, &s.uT, &s.rpT, &s.dlamK, &s.dyK} {
 		*v = grow(*v, n)
 	}
-	for _, v := range []*[]float64{&s.mu, &s.beta, &s.dbeta, &s.dbetaA, &s.wq0} {
+	for _, v := range []*[]float64{&s.mu, &s.beta, &s.dbeta, &s.dbetaA, &s.wq0, &s.betaT, &s.dbetaK} {
 		*v = grow(*v, nc)
 	}
 	if cap(s.piv) < n {
@@ -271,7 +282,8 @@ func (s *Solver) load(p *Problem, nlam int) error {
 // Impulse residuals are divided by sλ = max(1, ‖B‖∞ / max W_ii), velocity
 // residuals by su = max(1, ‖B‖∞), products by sλ su. For problems with
 // ‖B‖∞ ≤ 1 and max W_ii ≥ ‖B‖∞ both scales are 1 and the residuals are
-// absolute.
+// absolute. With κ = 0 the solve stops when SolveStats.Residual ≤
+// set.Tolerance and SolveStats.VelocityResidual ≤ set.VelocityTolerance.
 //
 // A solve that does not reach set.Tolerance within set.MaxIterations returns
 // a *SolveError; lambda then holds the last iterate.
@@ -285,6 +297,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 		return SolveStats{}, fmt.Errorf("contact: smoothing %v, want κ ≥ 0", set.Smoothing)
 	}
 	s.kappa = set.Smoothing
+	s.tolRatio = set.Tolerance / set.VelocityTolerance
 	var stats SolveStats
 	if s.n == 0 {
 		s.solved = true
@@ -292,8 +305,9 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 	}
 	s.initialPoint()
 	for it := 0; ; it++ {
-		natural, relaxed, gap := s.evaluate()
+		natural, velocity, relaxed, gap := s.evaluate()
 		stats.Iterations, stats.Complementarity, stats.Gap = it, natural, gap
+		stats.VelocityResidual = velocity
 		// With κ = 0 the interior-point pairs themselves must also be
 		// complementary (relaxed residual at target 0), so that the final
 		// iterate (λ, y, β) is a solution of the lifted problem, which the
@@ -302,7 +316,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 		if s.kappa > 0 {
 			stats.Residual = relaxed
 		}
-		if stats.Residual <= set.Tolerance {
+		if stats.Residual <= set.Tolerance && (s.kappa > 0 || velocity <= set.VelocityTolerance) {
 			copy(lambda, s.lam)
 			s.solved = true
 			return stats, nil
@@ -313,17 +327,37 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			if math.IsNaN(stats.Residual) {
 				reason = "iterate became NaN"
 			}
-			return stats, &SolveError{Iterations: it, Residual: stats.Residual, Tolerance: set.Tolerance, Reason: reason}
+			return stats, &SolveError{Iterations: it, Residual: stats.Residual, Tolerance: set.Tolerance,
+				VelocityResidual: velocity, VelocityTolerance: set.VelocityTolerance, Reason: reason}
 		}
 		alpha := s.iterate(gap, true)
 		if alpha < shortStep {
-			// A short step: try the Nesterov–Todd direction, and if it is
-			// short too, take a damped centring step.
-			if alpha2 := s.iterate(gap, false); alpha2 > alpha {
-				alpha = alpha2
-			} else {
-				alpha = s.centre(gap)
+			// A short step: also try the Nesterov–Todd direction and a
+			// damped centring step, and keep the candidate whose trial
+			// point has the smallest stopping residual; if none improves
+			// on the current one, the longest step.
+			current := stats.Residual
+			if s.kappa == 0 {
+				current = math.Max(current, velocity*s.tolRatio)
 			}
+			best, bestAlpha := s.trialResidual(alpha), alpha
+			s.keepCandidate()
+			if a := s.iterate(gap, false); a > 0 {
+				if r := s.trialResidual(a); better(r, a, best, bestAlpha, current) {
+					best, bestAlpha = r, a
+					s.keepCandidate()
+				}
+			}
+			if a := s.centre(gap); a > 0 {
+				if r := s.trialResidual(a); better(r, a, best, bestAlpha, current) {
+					best, bestAlpha = r, a
+					s.keepCandidate()
+				}
+			}
+			alpha = bestAlpha
+			copy(s.dlam, s.dlamK)
+			copy(s.dy, s.dyK)
+			copy(s.dbeta, s.dbetaK)
 		}
 		stats.Regularized += s.regularized
 		s.regularized = 0
@@ -335,6 +369,41 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			s.beta[c] += alpha * s.dbeta[c]
 		}
 	}
+}
+
+// trialResidual returns the stopping residual at the point a step alpha
+// along (s.dlam, s.dy, s.dbeta), leaving the iterate unchanged.
+func (s *Solver) trialResidual(alpha float64) float64 {
+	for i := range s.n {
+		s.lamT[i] = s.lam[i] + alpha*s.dlam[i]
+		s.yT[i] = s.y[i] + alpha*s.dy[i]
+	}
+	for c := range s.nc {
+		s.betaT[c] = s.beta[c] + alpha*s.dbeta[c]
+	}
+	natural, velocity, relaxed, _ := s.evaluateAt(s.lamT, s.yT, s.betaT, s.uT, s.rpT)
+	if s.kappa > 0 {
+		return relaxed
+	}
+	// Both stopping measures, the velocity one brought to the same footing.
+	return math.Max(math.Max(natural, relaxed), velocity*s.tolRatio)
+}
+
+// keepCandidate saves the current direction as the best so far.
+func (s *Solver) keepCandidate() {
+	copy(s.dlamK, s.dlam)
+	copy(s.dyK, s.dy)
+	copy(s.dbetaK, s.dbeta)
+}
+
+// better reports whether a candidate with trial residual r and step a beats
+// the best so far (rb, ab): a lower residual when it improves on the
+// current one, otherwise a longer step.
+func better(r, a, rb, ab, current float64) bool {
+	if r < current || rb < current {
+		return r < rb
+	}
+	return a > ab
 }
 
 // shortStep is the step length below which a predictor–corrector step is
@@ -472,31 +541,36 @@ func (s *Solver) initialPoint() {
 }
 
 // evaluate computes u = W λ + B and rp = y − u and returns the natural
-// residual of the exact conditions, the residual of the relaxed conditions
-// (target κ) and the complementarity gap.
+// residual of the exact conditions, the velocity residual, the residual of
+// the relaxed conditions (target κ) and the complementarity gap.
 //
-// The natural residual is the larger of two measures. The first is the
-// definition of the problem: cone violations of λ and ũ and |λᵀũ| per
-// contact. Products alone are weak when impulses are small (a sticking
-// contact with λ ≈ 0.02 N s and ut ≈ 1e-8 m/s has λᵀũ ≈ 1e-11), so the second
-// is the natural map ‖λ − Π_K(λ − ρ ũ)‖∞/ρ with ρ = 1/W_ii of the contact's
+// The natural residual is the definition of the problem: cone violations of
+// λ and ũ and |λᵀũ| per contact. Products alone are weak when impulses are
+// small (a sticking contact with λ ≈ 0.02 N s and ut ≈ 1e-8 m/s has
+// λᵀũ ≈ 1e-11), so the velocity residual is the natural map ‖λ − Π_K(λ − ρ ũ)‖∞/ρ with ρ = 1/W_ii of the contact's
 // normal row (the velocity a unit impulse gives the contact itself), which
 // vanishes exactly at solutions and reads in velocity units.
-func (s *Solver) evaluate() (natural, relaxed, gap float64) {
+func (s *Solver) evaluate() (natural, velocity, relaxed, gap float64) {
+	return s.evaluateAt(s.lam, s.y, s.beta, s.u, s.rp)
+}
+
+// evaluateAt is evaluate at the point (lam, y, beta), writing u and rp into
+// the given slices.
+func (s *Solver) evaluateAt(lam, y, beta, uOut, rpOut []float64) (natural, velocity, relaxed, gap float64) {
 	n := s.n
-	copy(s.u, s.b)
-	blas64.Gemv(blas.NoTrans, 1, s.general(s.wd), blas64.Vector{N: n, Data: s.lam, Inc: 1}, 1, blas64.Vector{N: n, Data: s.u, Inc: 1})
+	copy(uOut, s.b)
+	blas64.Gemv(blas.NoTrans, 1, s.general(s.wd), blas64.Vector{N: n, Data: lam, Inc: 1}, 1, blas64.Vector{N: n, Data: uOut, Inc: 1})
 	sL, sU := s.scaleL, s.scaleU
 	sC := sL * sU
 	k := s.kappa
 	for i := range n {
-		s.rp[i] = s.y[i] - s.u[i]
-		relaxed = math.Max(relaxed, math.Abs(s.rp[i])/sU)
+		rpOut[i] = y[i] - uOut[i]
+		relaxed = math.Max(relaxed, math.Abs(rpOut[i])/sU)
 	}
 	for c := range s.nc {
 		i := 3 * c
-		ln, lt1, lt2 := s.lam[i], s.lam[i+1], s.lam[i+2]
-		un, ut1, ut2 := s.u[i], s.u[i+1], s.u[i+2]
+		ln, lt1, lt2 := lam[i], lam[i+1], lam[i+2]
+		un, ut1, ut2 := uOut[i], uOut[i+1], uOut[i+2]
 		m := s.mu[c]
 		nlt, nut := math.Hypot(lt1, lt2), math.Hypot(ut1, ut2)
 		natural = math.Max(natural, math.Max(0, nlt-m*ln)/sL)
@@ -507,29 +581,29 @@ func (s *Solver) evaluate() (natural, relaxed, gap float64) {
 		x := soc3{ln - rho*(un+m*nut), lt1 - rho*ut1, lt2 - rho*ut2}
 		pr := projectCoulomb(m, x)
 		for r := range 3 {
-			natural = math.Max(natural, math.Abs(s.lam[i+r]-pr[r])/(rho*sU))
+			velocity = math.Max(velocity, math.Abs(lam[i+r]-pr[r])/(rho*sU))
 		}
-		pn := ln * s.y[i]
+		pn := ln * y[i]
 		gap += pn
 		relaxed = math.Max(relaxed, math.Abs(pn-k)/sC)
 		if m > 0 {
-			xi, eta := s.cone(c)
+			xi, eta := soc3{m * ln, lt1, lt2}, soc3{beta[c], y[i+1], y[i+2]}
 			p := socJordan(xi, eta)
 			gap += p[0]
 			relaxed = math.Max(relaxed, math.Max(math.Abs(p[0]-k), math.Max(math.Abs(p[1]), math.Abs(p[2])))/sC)
 		}
 	}
 	for i := 3 * s.nc; i < n; i++ {
-		l, u := s.lam[i], s.u[i]
+		l, u := lam[i], uOut[i]
 		natural = math.Max(natural, math.Max(0, -l)/sL)
 		natural = math.Max(natural, math.Max(0, -u)/sU)
 		natural = math.Max(natural, math.Abs(l*u)/sC)
-		natural = math.Max(natural, math.Abs(math.Min(l/s.rowRho(i), u))/sU)
-		p := l * s.y[i]
+		velocity = math.Max(velocity, math.Abs(math.Min(l/s.rowRho(i), u))/sU)
+		p := l * y[i]
 		gap += p
 		relaxed = math.Max(relaxed, math.Abs(p-k)/sC)
 	}
-	return natural, relaxed, gap
+	return natural, velocity, relaxed, gap
 }
 
 // rowRho returns 1/W_ii, or 1/max W_ii for a zero diagonal.
