@@ -22,13 +22,19 @@ const (
 type clipVert struct {
 	p          r3.Vec
 	kind, a, b uint8
-	// edge labels the polygon edge from this vertex to the next: 0–3 an
-	// incident edge, 4–7 a reference side plane.
+	// edge labels the polygon edge from this vertex to the next: below
+	// sidePlane an incident edge, from sidePlane on a reference side plane.
 	edge uint8
 }
 
+// sidePlane offsets the labels of reference side planes from those of
+// incident edges.
+const sidePlane = 32
+
+// clipPoly holds a polygon being clipped: at most an 8-gon cut by 8 side
+// planes.
 type clipPoly struct {
-	v [8]clipVert
+	v [16]clipVert
 	n int
 }
 
@@ -48,13 +54,13 @@ func clipAgainst(in, out *clipPoly, n r3.Vec, off float64, s uint8) {
 		}
 		if (dc <= 0) != (dn <= 0) {
 			x := clipVert{p: r3.Add(cur.p, r3.Scale(dc/(dc-dn), r3.Sub(next.p, cur.p)))}
-			if cur.edge < 4 {
+			if cur.edge < sidePlane {
 				x.kind, x.a, x.b = 1, cur.edge, s
 			} else {
-				x.kind, x.a, x.b = 2, cur.edge-4, s
+				x.kind, x.a, x.b = 2, cur.edge-sidePlane, s
 			}
 			if dc <= 0 {
-				x.edge = 4 + s // leaving: the polygon runs along the clip plane
+				x.edge = sidePlane + s // leaving: the polygon runs along the clip plane
 			} else {
 				x.edge = cur.edge
 			}

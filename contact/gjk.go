@@ -549,6 +549,13 @@ func convexPair(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Poin
 	if gap >= margin {
 		return dst
 	}
+	if sa.kind == Cylinder || sb.kind == Cylinder {
+		// The closed forms make their own manifolds; here only pairs
+		// with a cylinder need one.
+		if out, ok := flatManifold(&sa, &sb, n, margin, dst); ok {
+			return out
+		}
+	}
 	surfA := r3.Add(ca, r3.Scale(sa.sweep, n))
 	surfB := r3.Sub(cb, r3.Scale(sb.sweep, n))
 	return append(dst, Point{

@@ -141,3 +141,55 @@ func turn(u, v r3.Vec) Quat {
 	u, v = r3.Unit(u), r3.Unit(v)
 	return QuatFromAxisAngle(r3.Cross(u, v), math.Acos(r3.Dot(u, v)))
 }
+
+// TestFlatManifolds checks that flat-on-flat contacts handled by the
+// convex-distance route get a manifold that holds the shape up, with every
+// point's gap the hand-worked face-to-face distance.
+func TestFlatManifolds(t *testing.T) {
+	tests := []struct {
+		name string
+		a    *Shape
+		pa   Pose
+		b    *Shape
+		pb   Pose
+		n    int
+		gap  float64
+	}{
+		// The cap's ring of rim points, all inside the box face.
+		{"cylinder standing on box", box(0.5, 0.5, 0.1), IdentityPose, cylinder(0.2, 0.3), atRot(0.1, 0, 0.399, ez, 0.3), cylinderRingN, -0.001},
+		// The small box face lies inside the cap's ring.
+		{"box on cylinder cap", cylinder(0.2, 0.3), IdentityPose, box(0.1, 0.1, 0.05), atRot(0, 0.02, 0.352, ez, 0.4), 4, 0.002},
+		// Line contact: both ends of the side line.
+		{"cylinder lying on box", box(0.5, 0.5, 0.1), IdentityPose, cylinder(0.2, 0.3), atRot(0, 0.1, 0.299, ey, math.Pi/2), 2, -0.001},
+		{"cylinders stacked", cylinder(0.3, 0.2), IdentityPose, cylinder(0.1, 0.2), at(0.05, 0, 0.4), cylinderRingN, 0},
+		{"cylinders side by side", cylinder(0.2, 0.5), atRot(0, 0, 0, ex, math.Pi/2), cylinder(0.1, 0.3), atRot(0, 0.1, 0.3, ex, math.Pi/2), 2, 0},
+		{"capsule on cylinder cap", cylinder(0.2, 0.3), IdentityPose, capsule(0.05, 0.1), atRot(0, 0, 0.34, ex, math.Pi/2), 2, -0.01},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			for swap := 0; swap < 2; swap++ {
+				var ps []Point
+				if swap == 0 {
+					ps = Collide(tc.a, tc.pa, tc.b, tc.pb, 0.005, nil)
+				} else {
+					ps = Collide(tc.b, tc.pb, tc.a, tc.pa, 0.005, nil)
+				}
+				if len(ps) != tc.n {
+					t.Fatalf("swap %d: %d points, want %d", swap, len(ps), tc.n)
+				}
+				want := ez
+				if swap == 1 {
+					want = r3.Scale(-1, ez)
+				}
+				for i, p := range ps {
+					if math.Abs(p.Gap-tc.gap) > 1e-12 || !vecNear(p.Normal, want, 1e-12) {
+						t.Errorf("swap %d point %d: gap %v normal %v, want %v %v", swap, i, p.Gap, p.Normal, tc.gap, want)
+					}
+				}
+				if swap == 0 {
+					checkPoints(t, tc.a, tc.pa, tc.b, tc.pb, ps)
+				}
+			}
+		})
+	}
+}
