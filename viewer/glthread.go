@@ -49,11 +49,13 @@ func onGL(f func() error) error {
 
 // initGLFW initializes GLFW once; it runs on the GL thread.
 func initGLFW() error {
-	if glfwReady {
-		return nil
-	}
+	// Checked every time, so that the error does not depend on whether an
+	// earlier call already connected.
 	if os.Getenv("DISPLAY") == "" {
 		return ErrNoDisplay
+	}
+	if glfwReady {
+		return nil
 	}
 	if err := glfw.Init(); err != nil {
 		return fmt.Errorf("initializing GLFW on display %q: %w", os.Getenv("DISPLAY"), err)

@@ -270,7 +270,7 @@ func ContactText(c *sim.ContactRecord, h float64) []string {
 		fmt.Sprintf("contact %s / %s  feature %d", c.A, c.B, c.Feature),
 		fmt.Sprintf("state     %s", c.State),
 		fmt.Sprintf("point     %.4f %.4f %.4f m", c.Point.X, c.Point.Y, c.Point.Z),
-		fmt.Sprintf("normal    %.3f %.3f %.3f", c.Normal.X, c.Normal.Y, c.Normal.Z),
+		fmt.Sprintf("direction %.3f %.3f %.3f", c.Normal.X, c.Normal.Y, c.Normal.Z),
 		fmt.Sprintf("gap       %.4g mm", c.Gap*1e3),
 		fmt.Sprintf("normal    %.4g N   (impulse %.4g N s)", c.NormalImpulse/h, c.NormalImpulse),
 		fmt.Sprintf("friction  %.4g N   (impulse %.4g N s)", ft/h, ft),

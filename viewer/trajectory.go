@@ -55,6 +55,7 @@ func ReadTrajectory(rd io.Reader, name string) (*Trajectory, error) {
 		}
 		return nil, &sim.FileError{File: name, Line: 1, Err: err}
 	}
+	head = append([]string(nil), head...) // the reader reuses its record
 	col := map[string]int{}
 	for i, h := range head {
 		h = strings.TrimSpace(h)
