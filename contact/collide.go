@@ -46,7 +46,13 @@ const parallelTol = 1e-3
 // bodyPose.Mul(shape.Local)) whose gap is below margin, and returns dst.
 // Either shape may be a Plane (plane = half-space local z ≤ 0, outward
 // normal local +z); plane–plane gives nothing.
+//
+// Poses must be finite with unit rotations; a pose with a NaN or infinite
+// component gives no points (rather than points made of NaN).
 func Collide(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) []Point {
+	if !finitePose(pa) || !finitePose(pb) {
+		return dst
+	}
 	if a.Kind > b.Kind {
 		n := len(dst)
 		dst = collideOrdered(b, pb, a, pa, margin, dst)
@@ -334,4 +340,10 @@ func Bounds(s *Shape, p Pose, margin float64) r3.Box {
 	}
 	e = r3.Add(e, r3.Vec{X: margin, Y: margin, Z: margin})
 	return r3.Box{Min: r3.Sub(p.Pos, e), Max: r3.Add(p.Pos, e)}
+}
+
+func finitePose(p Pose) bool {
+	// x − x is 0 for finite x and NaN for NaN or ±Inf.
+	s := p.Pos.X + p.Pos.Y + p.Pos.Z + p.Rot.W + p.Rot.X + p.Rot.Y + p.Rot.Z
+	return s-s == 0
 }

@@ -293,7 +293,7 @@ func capsuleBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Poin
 			bestSep, bestAxis, bestL = sep, 3+k, l
 		}
 	}
-	if bestSep-r >= margin {
+	if bestAxis < 0 || bestSep-r >= margin {
 		return dst
 	}
 	if bestAxis < 3 {

@@ -140,6 +140,9 @@ func boxBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) [
 			}
 		}
 	}
+	if bestAxis < 0 {
+		return dst // NaN sizes
+	}
 	if bestAxis >= 6 {
 		return boxBoxEdge(pa, pb, &ax, &bx, &ha, &hb, bestL, bestAxis-6, margin, dst)
 	}

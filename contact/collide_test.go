@@ -1,6 +1,7 @@
 package contact
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"sort"
@@ -392,4 +393,94 @@ func BenchmarkSpherePlane(b *testing.B) {
 
 func BenchmarkCapsuleBox(b *testing.B) {
 	benchCollide(b, capsule(0.1, 0.2), atRot(0.1, 0, 0.34, ey, 1.5), box(0.5, 0.5, 0.25), IdentityPose)
+}
+
+// TestCollideDegenerateInput feeds degenerate shapes and poses (zero
+// sizes, NaN and infinite positions, unnormalised and zero rotations,
+// coincident centres) to every pair: Collide must return without
+// panicking, and for unit rotations every point must have a unit normal.
+func TestCollideDegenerateInput(t *testing.T) {
+	nan, inf := math.NaN(), math.Inf(1)
+	shapes := append([]*Shape{sphere(0), capsule(0, 0), box(0, 0, 0), cylinder(0, 0), box(0.1, 0, 0.1), cylinder(0.1, 0)}, testShapes...)
+	poses := []Pose{
+		IdentityPose, at(0, 0, 0), at(nan, 0, 0), at(inf, 0, 0), at(0, -inf, 0),
+		{Rot: Quat{}}, {Rot: Quat{W: 2, X: 1}}, {Pos: r3.Vec{Z: 1e-300}, Rot: IdentityQuat},
+	}
+	for _, a := range shapes {
+		for _, b := range shapes {
+			for _, pa := range poses {
+				for _, pb := range poses {
+					unit := math.Abs(pa.Rot.Norm()-1) < 1e-12 && math.Abs(pb.Rot.Norm()-1) < 1e-12
+					for _, p := range Collide(a, pa, b, pb, 0.1, nil) {
+						if n := r3.Norm(p.Normal); unit && !(math.Abs(n-1) < 1e-9) {
+							t.Errorf("%v-%v at %v, %v: normal %v with gap %v", a.Kind, b.Kind, pa, pb, p.Normal, p.Gap)
+						}
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestGapRotationDerivative checks the deepest point's position as well
+// as its normal: turning B by a small angle about a world axis ω through
+// its centre moves B's surface point x_B with velocity ω × (x_B − c_B),
+// so the gap changes at the rate n·(ω × (x_B − c_B)) (rigid-body
+// kinematics; central differences by gonum diff/fd).
+func TestGapRotationDerivative(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 32))
+	for _, a := range testShapes {
+		for _, b := range testShapes[1:] {
+			checked := 0
+			for trial := 0; trial < 400 && checked < 10; trial++ {
+				pa, pb := randomPose(rng, 0.4), randomPose(rng, 0.4)
+				ps := Collide(a, pa, b, pb, 0.05, nil)
+				if len(ps) != 1 || ps[0].Gap < 0 {
+					continue // one separated closest pair
+				}
+				p := ps[0]
+				xb := r3.Add(p.Pos, r3.Scale(p.Gap/2, p.Normal))
+				ok := true
+				gap := func(x []float64) float64 {
+					q := pb
+					q.Rot = QuatExp(r3.Vec{X: x[0], Y: x[1], Z: x[2]}).Mul(pb.Rot)
+					for _, r := range Collide(a, pa, b, q, 0.05, nil) {
+						if r.Feature == p.Feature {
+							return r.Gap
+						}
+					}
+					ok = false
+					return 0
+				}
+				g := fd.Gradient(nil, gap, make([]float64, 3), &fd.Settings{Formula: fd.Central, Step: 1e-6})
+				if !ok {
+					continue // a mode boundary within the step
+				}
+				checked++
+				// n·(ω × r) = ω·(r × n)
+				want := r3.Cross(r3.Sub(xb, pb.Pos), p.Normal)
+				if !vecNear(r3.Vec{X: g[0], Y: g[1], Z: g[2]}, want, 1e-5) {
+					t.Errorf("%v-%v: ∂gap/∂ω = %v, want %v", a.Kind, b.Kind, g, want)
+				}
+			}
+			if checked < 3 {
+				t.Errorf("%v-%v: only %d cases checked", a.Kind, b.Kind, checked)
+			}
+		}
+	}
+}
+
+func ExampleCollide() {
+	ground := &Shape{Kind: Plane, Local: IdentityPose}
+	crate := &Shape{Kind: Box, HalfExtents: r3.Vec{X: 0.2, Y: 0.1, Z: 0.05}, Local: IdentityPose}
+	// The crate rests 1 mm deep in the ground.
+	pts := Collide(ground, IdentityPose, crate, Pose{Pos: r3.Vec{Z: 0.049}, Rot: IdentityQuat}, 0.01, nil)
+	for _, p := range pts {
+		fmt.Printf("at (%+.2f, %+.2f) gap %.4f normal %v\n", p.Pos.X, p.Pos.Y, p.Gap, p.Normal)
+	}
+	// Output:
+	// at (-0.20, -0.10) gap -0.0010 normal {0 0 1}
+	// at (+0.20, -0.10) gap -0.0010 normal {0 0 1}
+	// at (-0.20, +0.10) gap -0.0010 normal {0 0 1}
+	// at (+0.20, +0.10) gap -0.0010 normal {0 0 1}
 }
