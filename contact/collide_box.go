@@ -281,7 +281,7 @@ func capsuleBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Poin
 	for k := 0; k < 3; k++ {
 		l := r3.Cross(wl, unitAt(k))
 		ln := r3.Norm(l)
-		if ln < 1e-6*lw {
+		if ln <= 1e-6*lw {
 			continue
 		}
 		l = r3.Scale(1/ln, l)

@@ -67,7 +67,7 @@ func (c *convexShape) flat(d r3.Vec, f *flatFeature) {
 			}
 			return
 		}
-		if rho := math.Hypot(l.X, l.Y); math.Abs(l.Z) <= flatTol && rho > 0 {
+		if rho := planarNorm(l); math.Abs(l.Z) <= flatTol && rho > 0 {
 			rim := c.m.MulVec(r3.Vec{X: c.radius * l.X / rho, Y: c.radius * l.Y / rho})
 			w := r3.Scale(c.halfLen, ax)
 			f.p[0] = r3.Add(c.pos, r3.Sub(rim, w))

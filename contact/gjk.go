@@ -73,7 +73,7 @@ func (c *convexShape) support(v r3.Vec) r3.Vec {
 	case Cylinder:
 		l := c.m.MulVecT(v)
 		p := r3.Vec{Z: math.Copysign(c.halfLen, l.Z)}
-		if rho := math.Hypot(l.X, l.Y); rho > 0 {
+		if rho := planarNorm(l); rho > 0 {
 			p.X, p.Y = c.radius*l.X/rho, c.radius*l.Y/rho
 		}
 		return r3.Add(c.pos, c.m.MulVec(p))
@@ -108,7 +108,7 @@ func (c *convexShape) supportFeature(v r3.Vec) uint32 {
 	case Cylinder:
 		l := c.m.MulVecT(v)
 		f := sgn(l.Z)
-		if math.Hypot(l.X, l.Y) > featureTol {
+		if planarNorm(l) > featureTol {
 			f += 4
 		}
 		return f
@@ -574,7 +574,7 @@ func (c *convexShape) supportJacobian(m r3.Vec) Mat3 {
 		return Mat3{}
 	}
 	l := c.m.MulVecT(m)
-	rho := math.Hypot(l.X, l.Y)
+	rho := planarNorm(l)
 	if rho <= featureTol {
 		return Mat3{}
 	}
@@ -622,7 +622,7 @@ func (c *convexShape) kinks(m r3.Vec, tol float64, k *[3]r3.Vec, n int) int {
 		if math.Abs(l.Z) <= tol {
 			add(col(2))
 		}
-		if math.Hypot(l.X, l.Y) <= tol {
+		if planarNorm(l) <= tol {
 			add(col(0))
 			add(col(1))
 		}
@@ -738,7 +738,7 @@ func newtonOnSphere(sa, sb *convexShape, m r3.Vec, c *r3.Vec, nc int) (r3.Vec, f
 			t2 = r3.Cross(m, t1)
 		}
 		g1, g2 := r3.Dot(t1, w), r3.Dot(t2, w)
-		if gnorm = math.Hypot(g1, g2); gnorm <= tol {
+		if gnorm = math.Sqrt(g1*g1+g2*g2); gnorm <= tol {
 			return m, h, true
 		}
 		j := sa.supportJacobian(m).Add(sb.supportJacobian(r3.Scale(-1, m)))
