@@ -738,7 +738,7 @@ func newtonOnSphere(sa, sb *convexShape, m r3.Vec, c *r3.Vec, nc int) (r3.Vec, f
 			t2 = r3.Cross(m, t1)
 		}
 		g1, g2 := r3.Dot(t1, w), r3.Dot(t2, w)
-		if gnorm = math.Sqrt(g1*g1+g2*g2); gnorm <= tol {
+		if gnorm = math.Sqrt(g1*g1 + g2*g2); gnorm <= tol {
 			return m, h, true
 		}
 		j := sa.supportJacobian(m).Add(sb.supportJacobian(r3.Scale(-1, m)))
