@@ -22,9 +22,10 @@ type Point struct {
 }
 
 // Feature layout: the high 16 bits name the feature of A, the low 16 bits
-// that of B, so that swapping the shapes swaps the halves. Routines whose
-// features do not split that way (box–box clipping, the convex-distance
-// fallback) set a tag bit in both halves' spare range instead.
+// that of B, so that swapping the shapes swaps the halves. Tag bits keep
+// the routines apart: 0x4000 in each half for the convex-distance route,
+// 0x2000 for its flat manifolds. Box–box contacts, whose clipped vertices
+// belong to both boxes at once, use their own layout (featBoxBox).
 func packFeature(fa, fb uint32) uint32 { return fa<<16 | fb&0xffff }
 
 func swapFeature(f uint32) uint32 { return f>>16 | f<<16 }
