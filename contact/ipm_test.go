@@ -89,6 +89,12 @@ func TestProjectCoulomb(t *testing.T) {
 	for trial := range 500 {
 		mu := []float64{0, 0.3, 1, 2.5}[trial%4]
 		x := soc3{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
+		if trial%8 < 2 {
+			// Points on the normal axis, either side of the apex: for μ = 0
+			// the cone is the ray x0 ≥ 0, which a test nt ≤ μ x0 alone
+			// misses.
+			x[1], x[2] = 0, 0
+		}
 		p := projectCoulomb(mu, x)
 		if math.Hypot(p[1], p[2]) > mu*p[0]+1e-12 {
 			t.Fatalf("trial %d: projection outside K", trial)

@@ -619,7 +619,9 @@ func (s *Solver) rowRho(i int) float64 {
 func projectCoulomb(mu float64, x soc3) soc3 {
 	nt := math.Hypot(x[1], x[2])
 	switch {
-	case nt <= mu*x[0]:
+	case nt <= mu*x[0] && x[0] >= 0:
+		// The x0 ≥ 0 test matters for μ = 0 and xt = 0, where K_0 is the
+		// ray x0 ≥ 0 and nt ≤ μ x0 holds for every x0.
 		return x
 	case mu*nt <= -x[0]:
 		// x lies in the polar cone −K_{1/μ}.

@@ -135,6 +135,46 @@ func TestSingleContactCoulomb(t *testing.T) {
 	}
 }
 
+func TestFrictionlessHeadOn(t *testing.T) {
+	// Newton's law of impact for two equal free spheres of mass m meeting
+	// head on without friction (REFERENCE-CHECKS: equal masses exchange
+	// velocities): the relative contact velocity has W = (2/m) I. A closing
+	// velocity −v with restitution target e v gives λn = m(1 + e)v/2; an
+	// opening one gives λ = 0. The tangential velocity is free (μ = 0
+	// imposes nothing on it) and λt = 0.
+	const m = 1.0
+	w := mat.NewSymDense(3, []float64{2 / m, 0, 0, 0, 2 / m, 0, 0, 0, 2 / m})
+	tests := []struct {
+		name   string
+		b      []float64
+		wantLn float64
+	}{
+		{"separating", []float64{2, 0, 0}, 0},
+		{"separating-sliding", []float64{2, 0.3, -0.1}, 0},
+		{"impact-e1", []float64{-2 - 2, 0.5, 0}, m * 2 * 2 / 2},
+		{"impact-e0-sliding", []float64{-2, 0.5, 0.2}, m * 2 / 2},
+		{"touching", []float64{0, 0.4, 0}, 0},
+	}
+	s := NewSolver()
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			p := &Problem{W: w, B: tc.b, Mu: []float64{0}, NumCones: 1}
+			lam := make([]float64, 3)
+			st, err := s.Solve(p, SolverSettings{}, lam)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(lam[0]-tc.wantLn) > 1e-9 || lam[1] != 0 || lam[2] != 0 {
+				t.Errorf("λ = %v, want (%g, 0, 0)", lam, tc.wantLn)
+			}
+			if r := coulombResidual(p, lam); r > 1e-9 {
+				t.Errorf("Coulomb residual %g", r)
+			}
+			t.Logf("iterations %d", st.Iterations)
+		})
+	}
+}
+
 // randomDelassus returns A Aᵀ + d I with A n×k standard normal.
 func randomDelassus(rng *rand.Rand, n, k int, d float64) *mat.SymDense {
 	a := mat.NewDense(n, k, nil)
