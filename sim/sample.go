@@ -93,3 +93,15 @@ func rotDiff(a, b contact.Quat) r3.Vec {
 	}
 	return r3.Scale(2, r3.Vec{X: d.X, Y: d.Y, Z: d.Z})
 }
+
+// sampleFrames runs to each of times and returns the frames there.
+func (s *Sim) sampleFrames(times []float64) ([]Frame, error) {
+	frames := make([]Frame, len(times))
+	for k, t := range times {
+		if err := s.runTo(t); err != nil {
+			return nil, err
+		}
+		frames[k] = s.frame()
+	}
+	return frames, nil
+}

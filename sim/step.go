@@ -53,6 +53,11 @@ type Contact struct {
 	// relative velocity of B with respect to A in the same basis.
 	Impulse  [3]float64
 	Velocity [3]float64
+
+	geomA, geomB int     // indices into the simulator's geometry
+	pair         int     // material pair index, or -1 for the default
+	pre          float64 // normal approach velocity before the step
+	bounce       bool    // the target came from Newton's impact law
 }
 
 // Slip returns the tangential slip speed after the step.
@@ -107,6 +112,10 @@ type Sim struct {
 	damp               []float64 // viscous joint damping per velocity coordinate
 	kp, kd             []float64 // controller stiffness and damping per coordinate, this step
 	tauCmd, tauAct     []float64 // actuator effort per coordinate this step: commanded, applied
+	sat                []bool // actuator saturated this step, per velocity coordinate
+	q0, v0             []float64
+	vpass              [midpointPasses + 1][]float64
+	tan                *tangentSweep
 	ctlIn              ControlInput
 	ctlOut             ControlOutput
 	limits             []limitRow
@@ -118,6 +127,7 @@ type Sim struct {
 	pairs     [][2]int32
 	pts       []contact.Point
 	matProps  [][]PairProps
+	matPair   [][]int // material pair index (or -1, the default) by material indices
 
 	contacts []Contact
 	rowTrees [][2]int
@@ -156,7 +166,13 @@ func New(m *Model, set Settings) (*Sim, error) {
 		kd:     make([]float64, lay.nv),
 		tauCmd: make([]float64, lay.nv),
 		tauAct: make([]float64, lay.nv),
+		sat:    make([]bool, lay.nv),
+		q0:     make([]float64, lay.nq),
+		v0:     make([]float64, lay.nv),
 		solver: contact.NewSolver(),
+	}
+	for i := range s.vpass {
+		s.vpass[i] = make([]float64, lay.nv)
 	}
 	if err := s.compileActuators(); err != nil {
 		return nil, err
@@ -200,6 +216,7 @@ func (s *Sim) control() {
 	m := s.model
 	for i := range s.tau {
 		s.tau[i], s.kp[i], s.kd[i], s.tauCmd[i], s.tauAct[i] = 0, 0, 0, 0, 0
+		s.sat[i] = false
 	}
 	if m.Controller != nil && len(m.Actuators) > 0 {
 		in, out := &s.ctlIn, &s.ctlOut
@@ -219,6 +236,7 @@ func (s *Sim) control() {
 				// Saturated: the effort no longer depends on the state.
 				s.tau[d] += math.Copysign(lim, e)
 				s.tauAct[d] += math.Copysign(lim, e)
+				s.sat[d] = true
 				continue
 			}
 			s.tau[d] += e
@@ -266,10 +284,18 @@ func (s *Sim) compileGeometry() {
 		matNames[i] = n
 	}
 	s.matProps = make([][]PairProps, len(names))
+	s.matPair = make([][]int, len(names))
 	for i := range s.matProps {
 		s.matProps[i] = make([]PairProps, len(names))
+		s.matPair[i] = make([]int, len(names))
 		for j := range s.matProps[i] {
 			s.matProps[i][j] = m.Materials.Lookup(matNames[i], matNames[j])
+			s.matPair[i][j] = -1
+			for k, p := range m.Materials.Pairs {
+				if s.matPair[i][j] < 0 && ((p.A == matNames[i] && p.B == matNames[j]) || (p.A == matNames[j] && p.B == matNames[i])) {
+					s.matPair[i][j] = k
+				}
+			}
 		}
 	}
 	s.boxes = make([]r3.Box, len(s.geoms))
@@ -397,6 +423,8 @@ func (s *Sim) Step() error {
 	m, lay, kin := s.model, s.lay, s.kin
 	h := s.set.TimeStep
 
+	copy(s.q0, s.q)
+	copy(s.v0, s.v)
 	s.control()
 	kin.massMatrix(m, lay, s.mass)
 	copy(s.chol, s.mass)
@@ -430,6 +458,7 @@ func (s *Sim) Step() error {
 		for i := range s.vfree {
 			s.vfree[i] = s.v[i] + s.rhs[i]
 		}
+		copy(s.vpass[pass], s.vfree)
 	}
 
 	s.collide()
@@ -441,6 +470,11 @@ func (s *Sim) Step() error {
 		return err
 	}
 	s.integrate()
+	if s.tan != nil {
+		if err := s.tan.step(s); err != nil {
+			return s.stepError(err)
+		}
+	}
 	s.t = float64(s.step+1) * h
 	s.step++
 	kin.update(m, lay, s.q, s.v)
@@ -499,6 +533,7 @@ func (s *Sim) collide() {
 				A: ga.owner, B: gb.owner, NameA: ga.name, NameB: gb.name,
 				Point: pt, Tangent1: t1, Tangent2: t2,
 				Friction: props.Friction, Restitution: props.Restitution,
+				geomA: int(p[0]), geomB: int(p[1]), pair: s.matPair[ga.material][gb.material],
 			})
 		}
 	}
@@ -578,8 +613,10 @@ func (s *Sim) solveContacts() error {
 				}
 			}
 		}
-		if pre < -s.set.BounceThreshold && gap+h*pre < 0 {
-			target = math.Max(target, -c.Restitution*pre)
+		c.pre, c.bounce = pre, false
+		if pre < -s.set.BounceThreshold && gap+h*pre < 0 && -c.Restitution*pre > target {
+			target = -c.Restitution * pre
+			c.bounce = true
 		}
 		c.Target = target
 		s.prob.Mu[k] = c.Friction

@@ -1,0 +1,139 @@
+package sim
+
+import (
+	"math"
+	"testing"
+
+	"stickslip/contact"
+
+	"gonum.org/v1/gonum/diff/fd"
+	"gonum.org/v1/gonum/floats"
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/spatial/r3"
+)
+
+// outputs flattens sampled positions, rotation vectors (relative to ref)
+// and joint positions into one vector.
+func outputs(frames []Frame, ref []Frame) []float64 {
+	var y []float64
+	for k, f := range frames {
+		for b, bf := range f.Bodies {
+			phi := rotDiff(ref[k].Bodies[b].Pose.Rot, bf.Pose.Rot)
+			y = append(y, bf.Pose.Pos.X, bf.Pose.Pos.Y, bf.Pose.Pos.Z, phi.X, phi.Y, phi.Z)
+		}
+		for _, j := range f.Joints {
+			y = append(y, j.Q)
+		}
+	}
+	return y
+}
+
+func sweepOutputs(smp *Samples, j int) []float64 {
+	var y []float64
+	for k, f := range smp.Frames {
+		for b := range f.Bodies {
+			p, r := smp.DPos[k][b][j], smp.DRot[k][b][j]
+			y = append(y, p.X, p.Y, p.Z, r.X, r.Y, r.Z)
+		}
+		for i := range f.Joints {
+			y = append(y, smp.DJoint[k][i][j])
+		}
+	}
+	return y
+}
+
+// checkSweep compares the forward tangent sweep of each parameter with
+// central finite differences of whole rollouts (gonum diff/fd), relative
+// error ≤ tol in the 2-norm over all sampled outputs.
+func checkSweep(t *testing.T, m *Model, set Settings, names []string, times []float64, tol float64) {
+	t.Helper()
+	params, err := ParseParams(m, names)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := mustSim(t, m, set)
+	smp, err := s.Sample(params, times)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j := range params {
+		p := &params[j]
+		v0 := p.Get(m)
+		f := func(y, x []float64) {
+			mm := CopyModel(m)
+			p.Set(mm, x[0])
+			o := mustSim(t, mm, set)
+			fr, err := o.sampleFrames(times)
+			if err != nil {
+				t.Fatal(err)
+			}
+			copy(y, outputs(fr, smp.Frames))
+		}
+		want := sweepOutputs(smp, j)
+		jac := make([]float64, len(want))
+		fd.Jacobian(matCol(jac), f, []float64{v0}, &fd.JacobianSettings{
+			Formula: fd.Central, Step: 1e-6 * math.Max(1, math.Abs(v0)),
+		})
+		diff := make([]float64, len(want))
+		floats.SubTo(diff, want, jac)
+		num, den := floats.Norm(diff, 2), floats.Norm(jac, 2)
+		if den == 0 && num == 0 {
+			continue
+		}
+		t.Logf("%s: rel err %.2e, ‖fd‖ %.3g", p.Name, num/math.Max(den, 1e-12), den)
+		if rel := num / math.Max(den, 1e-12); rel > tol {
+			t.Errorf("%s: sweep vs central differences: relative error %.3g > %.0e (‖fd‖ = %.4g)", p.Name, rel, tol, den)
+		}
+	}
+}
+
+func TestSweepFreeFlight(t *testing.T) {
+	// No contact: gravity, gyroscopic terms, start state, mass properties.
+	b := boxBody("puck", 2, r3.Vec{X: 0.4, Y: 0.25, Z: 0.1}, contact.Pose{Pos: r3.Vec{Z: 5}, Rot: contact.QuatFromAxisAngle(r3.Vec{X: 1, Y: 1}, 0.4)})
+	b.Start.Angular = r3.Vec{X: 0.5, Y: 3, Z: 1}
+	b.Start.Linear = r3.Vec{X: 1}
+	b.COM = r3.Vec{X: 0.02}
+	m := &Model{Gravity: down, Bodies: []Body{b}, Loads: []Load{{Body: 0, Point: r3.Vec{X: 0.1}, Force: r3.Vec{Y: 3}}}}
+	checkSweep(t, m, Settings{}, []string{"gravity.z", "mass:puck", "inertia.y:puck", "com.x:puck",
+		"start.vx:puck", "start.wy:puck", "start.z:puck"}, []float64{0.1, 0.3}, 1e-5)
+}
+
+func TestSweepArm(t *testing.T) {
+	// Joints, PD controller, damping, armature and joint friction.
+	m := pdArm(200, []float64{0.3, -0.4, 0.5})
+	for i := range m.Bodies {
+		m.Bodies[i].Joint.Damping = 0.3
+		m.Bodies[i].Joint.Armature = 0.01
+		m.Bodies[i].Joint.Friction = 0.2
+		m.Bodies[i].Joint.Position = 0
+	}
+	checkSweep(t, m, Settings{}, []string{"kp:motor1", "kd:motor2", "damping:link2-joint", "armature:link1-joint",
+		"joint-friction:link3-joint", "mass:link2", "start.q:link1-joint", "start.qd:link3-joint", "gravity.z"}, []float64{0.05, 0.2}, 1e-5)
+}
+
+func slidingBox() *Model {
+	size := r3.Vec{X: 0.3, Y: 0.2, Z: 0.1}
+	b := boxBody("crate", 1.5, size, contact.Pose{Pos: r3.Vec{Z: size.Z / 2}, Rot: contact.IdentityQuat})
+	b.Start.Linear = r3.Vec{X: 2, Y: 0.3}
+	b.Material = "pine"
+	f := floor(0)
+	f.Material = "tile"
+	return &Model{Gravity: down, Static: []StaticShape{f}, Bodies: []Body{b},
+		Materials: Materials{Default: PairProps{Friction: 0.5}, Pairs: []MaterialPair{{A: "pine", B: "tile", PairProps: PairProps{Friction: 0.4}}}}}
+}
+
+func TestSweepSlidingBox(t *testing.T) {
+	// Contact mode fixed (sliding) over the window.
+	checkSweep(t, slidingBox(), Settings{}, []string{"friction:pine/tile", "mass:crate", "start.vx:crate", "gravity.z", "inertia.z:crate"},
+		[]float64{0.05, 0.15}, 1e-5)
+}
+
+func TestSweepBallDrop(t *testing.T) {
+	m := &Model{Gravity: down, Static: []StaticShape{floor(0)},
+		Bodies:    []Body{sphereBody("ball", 0.06, 0.05, r3.Vec{Z: 0.3})},
+		Materials: Materials{Default: PairProps{Friction: 0.5}, Pairs: []MaterialPair{{A: "test", B: "ground", PairProps: PairProps{Friction: 0.5, Restitution: 0.7}}}}}
+	checkSweep(t, m, Settings{}, []string{"restitution:test/ground", "start.z:ball", "start.vx:ball"}, []float64{0.3}, 1e-5)
+}
+
+// matCol wraps a slice as an n×1 matrix for fd.Jacobian.
+func matCol(d []float64) *mat.Dense { return mat.NewDense(len(d), 1, d) }
