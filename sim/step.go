@@ -112,7 +112,7 @@ type Sim struct {
 	damp               []float64 // viscous joint damping per velocity coordinate
 	kp, kd             []float64 // controller stiffness and damping per coordinate, this step
 	tauCmd, tauAct     []float64 // actuator effort per coordinate this step: commanded, applied
-	sat                []bool // actuator saturated this step, per velocity coordinate
+	sat                []bool    // actuator saturated this step, per velocity coordinate
 	q0, v0             []float64
 	vpass              [midpointPasses + 1][]float64
 	tan                *tangentSweep

@@ -18,8 +18,8 @@ type tangentSweep struct {
 
 	// workspaces
 	dmass, dc, c, dtau, dkp, dkd, drhs, x, dx []float64
-	dvarg, dvfree, dvplus                    []float64
-	djac, dbeff, dlam, dmu, w, tmp           []float64
+	dvarg, dvfree, dvplus                     []float64
+	djac, dbeff, dlam, dmu, w, tmp            []float64
 }
 
 func newTangents(s *Sim, params []Param) *tangentSweep {
