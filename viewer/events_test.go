@@ -31,40 +31,28 @@ func runWithStates(states [][]string) *sim.Run {
 	return r
 }
 
-func TestContactEvents(t *testing.T) {
+func TestEventFramesAndKeyFrames(t *testing.T) {
 	r := runWithStates([][]string{
 		/* 0 */ {"-", "separating"},
 		/* 1 */ {"sticking", "separating"}, // 0 touches down
 		/* 2 */ {"sticking", "sticking"}, // 1 touches down
 		/* 3 */ {"sliding", "sticking"}, // 0 slips
-		/* 4 */ {"sliding", "separating"}, // 1 lifts off (still recorded)
+		/* 4 */ {"sliding", "separating"}, // 1 lifts off
 		/* 5 */ {"sticking", "-"}, // 0 sticks
 		/* 6 */ {"-", "-"}, // 0 vanishes while touching: lifts off
 		/* 7 */ {"sliding", "-"}, // 0 touches down sliding
+		/* 8 */ {"sliding", "separating"}, // nothing touches down or changes
 	})
-	got := ContactEvents(r)
-	want := []Event{
-		{1, TouchDown, "floor", "puck", 0},
-		{2, TouchDown, "floor", "puck", 1},
-		{3, StartSliding, "floor", "puck", 0},
-		{4, LiftOff, "floor", "puck", 1},
-		{5, StartSticking, "floor", "puck", 0},
-		{6, LiftOff, "floor", "puck", 0},
-		{7, TouchDown, "floor", "puck", 0},
-	}
-	if !reflect.DeepEqual(got, want) {
-		t.Fatalf("events\n got %v\nwant %v", got, want)
-	}
-	if fr := EventFrames(got); !reflect.DeepEqual(fr, []int{1, 2, 3, 4, 5, 6, 7}) {
-		t.Errorf("event frames %v", fr)
+	if fr := EventFrames(r.Events()); !reflect.DeepEqual(fr, []int{1, 2, 3, 4, 5, 6, 7}) {
+		t.Errorf("event frames %v, want 1 to 7", fr)
 	}
 	if f, ok := FirstSlipFrame(r); !ok || f != 3 {
 		t.Errorf("first slip frame %d %v, want 3", f, ok)
 	}
 	// Impulses grow with the frame index in this fixture; the largest
-	// touching one is in frame 7.
-	if f, ok := LargestImpulseFrame(r); !ok || f != 7 {
-		t.Errorf("largest impulse frame %d %v, want 7", f, ok)
+	// touching one is in frame 8.
+	if f, ok := LargestImpulseFrame(r); !ok || f != 8 {
+		t.Errorf("largest impulse frame %d %v, want 8", f, ok)
 	}
 	if _, ok := FirstSlipFrame(runWithStates([][]string{{"sticking"}})); ok {
 		t.Error("a run without sliding has no first slip")
@@ -72,12 +60,9 @@ func TestContactEvents(t *testing.T) {
 	if _, ok := LargestImpulseFrame(runWithStates([][]string{{"separating"}})); ok {
 		t.Error("a run without impulses has no largest impulse")
 	}
-}
-
-func TestEventKindString(t *testing.T) {
-	for k, want := range map[EventKind]string{TouchDown: "touch-down", LiftOff: "lift-off", StartSliding: "slip", StartSticking: "stick", 9: "unknown"} {
-		if k.String() != want {
-			t.Errorf("%d: %q, want %q", k, k.String(), want)
+	for k, want := range map[sim.EventKind]string{sim.TouchDown: "touch-down", sim.LiftOff: "lift-off", sim.StickSlip: "stick->slip", sim.SlipStick: "slip->stick"} {
+		if eventLabel(k) != want {
+			t.Errorf("label of %v: %q, want %q", k, eventLabel(k), want)
 		}
 	}
 }

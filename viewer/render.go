@@ -5,6 +5,8 @@ import (
 	"image"
 	"strings"
 
+	"stickslip/sim"
+
 	"github.com/go-gl/gl/v3.3-core/gl"
 	"gonum.org/v1/gonum/spatial/r3"
 )
@@ -28,6 +30,7 @@ const meshFS = `#version 330 core
 in vec3 vNormal;
 uniform vec4 uColor;
 uniform vec3 uLight;
+uniform vec3 uFill;
 uniform int uUnlit;
 out vec4 fragColor;
 void main() {
@@ -36,7 +39,8 @@ void main() {
 		return;
 	}
 	vec3 n = normalize(vNormal);
-	float k = 0.35 + 0.65 * max(dot(n, uLight), 0.0);
+	float k = 0.3 + 0.6 * max(dot(n, uLight), 0.0) + 0.25 * max(dot(n, uFill), 0.0);
+	k = min(k, 1.0);
 	fragColor = vec4(uColor.rgb * k, uColor.a);
 }
 ` + "\x00"
@@ -97,7 +101,7 @@ type glMesh struct {
 
 type meshProgram struct {
 	id                                              uint32
-	viewProj, model, normal, color, light, unlitLoc int32
+	viewProj, model, normal, color, light, fill, unlitLoc int32
 }
 
 type textSlot struct {
@@ -195,6 +199,7 @@ func newRenderer(s *Scene) (*renderer, error) {
 	r.mesh.normal = uniform(r.mesh.id, "uNormal")
 	r.mesh.color = uniform(r.mesh.id, "uColor")
 	r.mesh.light = uniform(r.mesh.id, "uLight")
+	r.mesh.fill = uniform(r.mesh.id, "uFill")
 	r.mesh.unlitLoc = uniform(r.mesh.id, "uUnlit")
 	if r.lineProg, err = linkProgram(lineVS, lineFS); err != nil {
 		return nil, err
@@ -330,12 +335,15 @@ func (r *renderer) drawLines(vao, vbo uint32, v []float32, count int32, upload b
 	gl.DrawArrays(gl.LINES, 0, count)
 }
 
-// lightDir returns the world direction towards the light: over the
-// viewer's left shoulder, so that faces turned to the camera are lit.
-func lightDir(cam Camera) r3.Vec {
+// lightDirs returns the world directions towards the key light, over the
+// viewer's left shoulder, and a weaker fill light from the right, so that
+// faces turned to the camera are lit and no visible face is flat black.
+func lightDirs(cam Camera) (key, fill r3.Vec) {
 	right, up := cam.basis()
 	back := r3.Unit(r3.Sub(cam.Eye(), cam.Target))
-	return r3.Unit(r3.Add(back, r3.Add(r3.Scale(0.6, up), r3.Scale(-0.4, right))))
+	key = r3.Unit(r3.Add(back, r3.Add(r3.Scale(0.6, up), r3.Scale(-0.4, right))))
+	fill = r3.Unit(r3.Add(back, r3.Add(r3.Scale(-0.2, up), r3.Scale(1.2, right))))
+	return key, fill
 }
 
 // frameInput is everything one drawn frame depends on.
@@ -361,8 +369,9 @@ func (r *renderer) draw(in *frameInput) {
 
 	s.build(in.frame, in.cam, h, st, &r.dl)
 	vp := in.cam.viewProj(float64(w) / float64(h))
-	light := lightDir(in.cam)
-	l32 := [3]float32{float32(light.X), float32(light.Y), float32(light.Z)}
+	key, fill := lightDirs(in.cam)
+	l32 := [3]float32{float32(key.X), float32(key.Y), float32(key.Z)}
+	f32 := [3]float32{float32(fill.X), float32(fill.Y), float32(fill.Z)}
 
 	gl.Enable(gl.DEPTH_TEST)
 	gl.DepthFunc(gl.LEQUAL)
@@ -371,6 +380,7 @@ func (r *renderer) draw(in *frameInput) {
 	gl.UseProgram(r.mesh.id)
 	gl.UniformMatrix4fv(r.mesh.viewProj, 1, false, &vp[0])
 	gl.Uniform3fv(r.mesh.light, 1, &l32[0])
+	gl.Uniform3fv(r.mesh.fill, 1, &f32[0])
 	gl.Enable(gl.POLYGON_OFFSET_FILL)
 	gl.PolygonOffset(1, 1)
 	gl.Disable(gl.CULL_FACE) // the ground reads from both sides
@@ -472,13 +482,13 @@ func timeBar(width, height int) (x0, y0, x1, y1 float64) {
 	return barMargin, float64(height - barMargin - barHeight), float64(width - barMargin), float64(height - barMargin)
 }
 
-func eventColor(k EventKind) rgba {
+func eventColor(k sim.EventKind) rgba {
 	switch k {
-	case StartSliding:
+	case sim.StickSlip:
 		return toRGBA(SlidingColor)
-	case StartSticking:
+	case sim.SlipStick:
 		return toRGBA(StickingColor)
-	case LiftOff:
+	case sim.LiftOff:
 		return toRGBA(SeparatingColor)
 	}
 	return rgba{1, 1, 1, 1}

@@ -19,7 +19,7 @@ type Scene struct {
 	run    *sim.Run
 	bodyOf []int // run body → model body
 	bounds Bounds
-	events []Event
+	events []sim.Event
 	// maxForce is the largest contact force of the run (N).
 	maxForce float64
 	log      *Trajectory
@@ -83,7 +83,7 @@ func NewScene(m *sim.Model, r *sim.Run, log *Trajectory) (*Scene, error) {
 		}
 	}
 	s.bounds = s.motionBounds()
-	s.events = ContactEvents(r)
+	s.events = r.Events()
 	s.maxForce = maxContactForce(r)
 	s.grid = s.groundPatches()
 	return s, nil
@@ -110,8 +110,8 @@ func (s *Scene) Run() *sim.Run { return s.run }
 // and the static shapes other than planes.
 func (s *Scene) Bounds() Bounds { return s.bounds }
 
-// Events returns the run's contact events.
-func (s *Scene) Events() []Event { return s.events }
+// Events returns the run's contact events (sim.Run.Events).
+func (s *Scene) Events() []sim.Event { return s.events }
 
 // DefaultArrowScale returns the arrow scale (m/N) that draws the largest
 // contact force of the run a quarter of the scene radius long.

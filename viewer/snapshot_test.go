@@ -12,7 +12,6 @@ import (
 	"strings"
 	"testing"
 
-
 	"gonum.org/v1/gonum/spatial/r3"
 )
 
@@ -122,7 +121,7 @@ func TestSnapshotMotion(t *testing.T) {
 	saveOnFailure(t, a, "motion-a")
 	saveOnFailure(t, b, "motion-b")
 	red := BodyColor(0)
-	left := r3.Vec{X: -0.15, Z: 0.2}  // on the box at frame 30 only
+	left := r3.Vec{X: -0.15, Z: 0.2} // on the box at frame 30 only
 	right := r3.Vec{X: 0.44, Z: 0.2} // on the box at frame 59 only
 	lx, ly, _ := cam.Project(left, snapW, snapH)
 	rx, ry, _ := cam.Project(right, snapW, snapH)
@@ -338,4 +337,3 @@ func saveOnFailure(t *testing.T, img *image.RGBA, name string) {
 		}
 	})
 }
-

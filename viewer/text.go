@@ -140,7 +140,7 @@ func (s *Scene) statusLines(frame int, tl *Timeline, st *Style, scale float64, e
 				lines = append(lines, "  ...")
 				break
 			}
-			lines = append(lines, fmt.Sprintf("event: %s %s/%s", e.Kind, e.A, e.B))
+			lines = append(lines, fmt.Sprintf("event: %s %s/%s", eventLabel(e.Kind), e.Record.A, e.Record.B))
 			n++
 		}
 	}
