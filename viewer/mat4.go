@@ -15,8 +15,6 @@ type mat4 [16]float32
 // mat3 is a 3×3 matrix in column-major order.
 type mat3 [9]float32
 
-var identity4 = mat4{1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1}
-
 func (a mat4) mul(b mat4) mat4 {
 	var r mat4
 	for j := 0; j < 4; j++ {

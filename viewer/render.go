@@ -100,7 +100,7 @@ type glMesh struct {
 }
 
 type meshProgram struct {
-	id                                              uint32
+	id                                                    uint32
 	viewProj, model, normal, color, light, fill, unlitLoc int32
 }
 
@@ -130,10 +130,9 @@ type renderer struct {
 
 	status, contactPanel, help textSlot
 
-	dl    drawList
-	flat  []float32
-	errs  []BodyError
-	lines []string
+	dl   drawList
+	flat []float32
+	errs []BodyError
 }
 
 func compileShader(src string, kind uint32) (uint32, error) {
