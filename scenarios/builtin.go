@@ -3,6 +3,7 @@ package scenarios
 import (
 	"embed"
 	"fmt"
+	"io/fs"
 	"path"
 	"sort"
 	"strings"
@@ -49,6 +50,9 @@ func LoadBuiltin(name string, overrides ...string) (*Scene, error) {
 	if err != nil {
 		return nil, err
 	}
-	l := Loader{Overrides: overrides}
+	// Built-in scenes are self-contained; any table file they named would
+	// come from the embedded directory, never from disk.
+	files, _ := fs.Sub(builtinFS, "builtin")
+	l := Loader{Overrides: overrides, Files: files}
 	return l.Load(src, "builtin:"+name)
 }

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
 	"regexp"
 	"slices"
@@ -25,8 +26,10 @@ type decoder struct {
 	// error in such a value names the override rather than a line.
 	origin     map[*yaml.Node]string
 	overlapTol float64
-	warnings   []Warning
-	visits     int
+	// files, if not nil, is where table files named in the scene are read.
+	files    fs.FS
+	warnings []Warning
+	visits   int
 }
 
 // fail raises an *Error located at n.

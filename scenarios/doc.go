@@ -4,7 +4,10 @@
 // A scene file names the bodies (their shapes, mass properties, surface
 // material, starting pose and velocity, and the joint that holds each to its
 // parent), the static world geometry, the friction and restitution of
-// material pairs, external loads, gravity and the time-stepping settings.
+// material pairs, external loads, the actuators on joints and the
+// controller that commands them, gravity and the time-stepping settings.
+// Controller tables (targets, efforts) may live in CSV files beside the
+// scene file.
 // Load turns it into a sim.Model and sim.Settings; Marshal writes a scene
 // back so that loading it again gives the same model.
 //

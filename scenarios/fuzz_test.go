@@ -3,6 +3,7 @@ package scenarios
 import (
 	"reflect"
 	"testing"
+	"testing/fstest"
 )
 
 // FuzzLoad feeds arbitrary bytes to the loader. It must never panic, every
@@ -11,8 +12,10 @@ import (
 // built-in scenes and a scene using every feature.
 func FuzzLoad(f *testing.F) {
 	f.Add([]byte(richScene), "bodies.crate.mass=2")
+	f.Add([]byte(controlScene), "controller.pd.kp.h=5")
 	f.Fuzz(func(t *testing.T, src []byte, override string) {
-		l := Loader{}
+		// Table files come from memory, never from the disk.
+		l := Loader{Files: fstest.MapFS{"t.csv": {Data: []byte("t,h,k\n0,1,2\n0.5,-1,3\n")}}}
 		if override != "" {
 			l.Overrides = []string{override}
 		}
@@ -27,7 +30,7 @@ func FuzzLoad(f *testing.F) {
 		if err != nil {
 			t.Fatalf("Marshal of a loaded scene: %v", err)
 		}
-		var l2 Loader
+		l2 := Loader{Files: fstest.MapFS{}}
 		s2, err := l2.Load(out, "fuzz-marshalled.yaml")
 		if err != nil {
 			t.Fatalf("reload: %v\n%s", err, out)

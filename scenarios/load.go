@@ -18,7 +18,7 @@ import (
 // The fields of each part of a scene file. docs/scene-format.md describes
 // them; the tests check that it mentions every one.
 var (
-	sceneFields    = []string{"name", "description", "gravity", "settings", "materials", "static", "bodies", "loads"}
+	sceneFields    = []string{"name", "description", "gravity", "settings", "materials", "static", "bodies", "loads", "actuators", "controller"}
 	settingsFields = []string{"time_step", "duration", "frame_every", "contact_margin", "correction_rate", "correction_max_speed", "bounce_threshold", "solver"}
 	solverFields   = []string{"tolerance", "max_iterations", "smoothing"}
 	materialFields = []string{"default", "surfaces", "pairs"}
@@ -73,6 +73,8 @@ func (d *decoder) scene(root *yaml.Node) *Scene {
 	m.Static, planes = d.statics(f.get("static"), surfaces, names)
 	m.Bodies = d.bodies(f.get("bodies"), surfaces, names, planes)
 	m.Loads = d.loads(f.get("loads"), m.Bodies)
+	m.Actuators = d.actuators(f.get("actuators"), m.Bodies)
+	m.Controller = d.controller(f.get("controller"), m.Actuators, m.Bodies)
 	d.overlaps(m, f.get("bodies"))
 	s.Warnings = d.warnings
 	return s

@@ -271,7 +271,7 @@ func TestRichScene(t *testing.T) {
 		t.Errorf("gravity %v", m.Gravity)
 	}
 	want := sim.Settings{TimeStep: 0.0005, Duration: 2.5, FrameEvery: 4, Margin: 0.002, CorrectionRate: 0.3,
-		MaxCorrection: 0.2, BounceThreshold: 0.02, Solver: contact.SolverSettings{Tolerance: 1e-9, MaxIterations: 40, Smoothing: 1e-6}}
+		MaxCorrection: 0.2, BounceThreshold: 0.02, Solver: contact.SolverSettings{Tolerance: 1e-9, MaxIterations: 40, Smoothing: 1e-6}}.WithDefaults()
 	if s.Settings != want {
 		t.Errorf("settings %+v, want %+v", s.Settings, want)
 	}
@@ -610,7 +610,8 @@ func TestDocsMentionEveryField(t *testing.T) {
 		t.Skip("docs not found:", err)
 	}
 	lists := [][]string{sceneFields, settingsFields, solverFields, materialFields, propsFields, pairFields,
-		shapeFields, staticFields, bodyFields, bodyPoseFields, inertiaFields, velocityFields, jointFields, limitFields, loadFields, keyFields}
+		shapeFields, staticFields, bodyFields, bodyPoseFields, inertiaFields, velocityFields, jointFields, limitFields, loadFields, keyFields,
+		actuatorFields, controllerFields, pdFields, feedforwardFields, tableFields}
 	for _, l := range lists {
 		for _, f := range l {
 			if !strings.Contains(string(doc), "`"+f+"`") {

@@ -17,7 +17,9 @@ import (
 // and Settings: every number is written with the shortest decimal form that
 // reads back to the same float64. Mass properties are written as mass,
 // centre of mass and inertia (a density the scene was read with is not
-// kept), and bodies resting "on" a plane get their resolved position.
+// kept), bodies resting "on" a plane get their resolved position, and
+// controller tables read from CSV files are written inline. The controller
+// must be a *sim.PD, a *sim.Feedforward, or a sim.Sum of at most one of each.
 func Marshal(s *Scene) ([]byte, error) {
 	if s == nil || s.Model == nil {
 		return nil, fmt.Errorf("scenarios: Marshal of a scene without a model")
@@ -87,6 +89,20 @@ func Marshal(s *Scene) ([]byte, error) {
 			seq.Content = append(seq.Content, e)
 		}
 		add(root, "loads", seq)
+	}
+	if len(m.Actuators) > 0 {
+		seq, err := actuatorsNode(m)
+		if err != nil {
+			return nil, err
+		}
+		add(root, "actuators", seq)
+	}
+	if m.Controller != nil {
+		c, err := controllerNode(m)
+		if err != nil {
+			return nil, err
+		}
+		add(root, "controller", c)
 	}
 	var buf bytes.Buffer
 	enc := yaml.NewEncoder(&buf)
@@ -334,4 +350,115 @@ func floats(v ...float64) *yaml.Node {
 		n.Content = append(n.Content, num(x))
 	}
 	return n
+}
+
+func actuatorsNode(m *sim.Model) (*yaml.Node, error) {
+	seq := seqNode(false)
+	for _, a := range m.Actuators {
+		if a.Body < 0 || a.Body >= len(m.Bodies) {
+			return nil, fmt.Errorf("scenarios: actuator %q drives body %d, but the model has %d bodies", a.Name, a.Body, len(m.Bodies))
+		}
+		j := &m.Bodies[a.Body].Joint
+		if j.Kind != sim.Revolute && j.Kind != sim.Prismatic {
+			return nil, fmt.Errorf("scenarios: actuator %q drives the %s joint %q; only revolute and prismatic joints take actuators", a.Name, j.Kind, j.Name)
+		}
+		e := mapNode()
+		e.Style = yaml.FlowStyle
+		add(e, "name", str(a.Name))
+		add(e, "joint", str(j.Name))
+		if a.EffortLimit > 0 {
+			add(e, "effort_limit", num(a.EffortLimit))
+		}
+		seq.Content = append(seq.Content, e)
+	}
+	return seq, nil
+}
+
+func controllerNode(m *sim.Model) (*yaml.Node, error) {
+	var pd *sim.PD
+	var ff *sim.Feedforward
+	var take func(c sim.Controller) error
+	take = func(c sim.Controller) error {
+		switch c := c.(type) {
+		case *sim.PD:
+			if pd != nil {
+				return fmt.Errorf("scenarios: a scene file holds one PD controller; the model has two")
+			}
+			pd = c
+		case *sim.Feedforward:
+			if ff != nil {
+				return fmt.Errorf("scenarios: a scene file holds one feedforward table; the model has two")
+			}
+			ff = c
+		case sim.Sum:
+			for _, x := range c {
+				if err := take(x); err != nil {
+					return err
+				}
+			}
+		default:
+			return fmt.Errorf("scenarios: a controller of type %T cannot be written to a scene file (only PD, feedforward and their sum)", c)
+		}
+		return nil
+	}
+	if err := take(m.Controller); err != nil {
+		return nil, err
+	}
+	n := len(m.Actuators)
+	if n == 0 {
+		return nil, fmt.Errorf("scenarios: the model has a controller but no actuators")
+	}
+	c := mapNode()
+	if pd != nil {
+		if len(pd.Kp) != n || len(pd.Kd) != n {
+			return nil, fmt.Errorf("scenarios: PD controller has %d kp and %d kd gains for %d actuators", len(pd.Kp), len(pd.Kd), n)
+		}
+		p := mapNode()
+		for _, g := range []struct {
+			key string
+			v   []float64
+		}{{"kp", pd.Kp}, {"kd", pd.Kd}} {
+			gn := mapNode()
+			gn.Style = yaml.FlowStyle
+			for i, a := range m.Actuators {
+				add(gn, a.Name, num(g.v[i]))
+			}
+			add(p, g.key, gn)
+		}
+		t, err := tableNode(m, &pd.Targets, "PD targets")
+		if err != nil {
+			return nil, err
+		}
+		add(p, "targets", t)
+		add(c, "pd", p)
+	}
+	if ff != nil {
+		t, err := tableNode(m, &ff.Efforts, "feedforward efforts")
+		if err != nil {
+			return nil, err
+		}
+		f := mapNode()
+		add(f, "efforts", t)
+		add(c, "feedforward", f)
+	}
+	return c, nil
+}
+
+// tableNode writes a table inline, one column per actuator.
+func tableNode(m *sim.Model, tb *sim.Table, what string) (*yaml.Node, error) {
+	if err := tb.Validate(len(m.Actuators)); err != nil {
+		return nil, fmt.Errorf("scenarios: %s: %v", what, err)
+	}
+	t := mapNode()
+	cols := seqNode(true)
+	for _, a := range m.Actuators {
+		cols.Content = append(cols.Content, str(a.Name))
+	}
+	add(t, "columns", cols)
+	rows := seqNode(false)
+	for i, time := range tb.Times {
+		rows.Content = append(rows.Content, floats(append([]float64{time}, tb.Values[i]...)...))
+	}
+	add(t, "rows", rows)
+	return t, nil
 }

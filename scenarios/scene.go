@@ -2,6 +2,7 @@ package scenarios
 
 import (
 	"fmt"
+	"io/fs"
 	"os"
 	"strings"
 
@@ -93,6 +94,11 @@ type Loader struct {
 	// bodies touching at the start are not reported (default 1e-6, well
 	// above the rounding of positions written in decimal).
 	OverlapTolerance float64
+	// Files is where table files named in the scene (controller targets
+	// and efforts in CSV) are read from, by paths valid for fs.FS. If nil,
+	// they are read from disk, relative paths taken from the directory of
+	// the filename given to Load.
+	Files fs.FS
 }
 
 // LoadFile reads and loads the scene file at path with the given overrides.
@@ -108,7 +114,7 @@ func LoadFile(path string, overrides ...string) (*Scene, error) {
 // Load parses, checks and converts the scene in src. filename is used only
 // in messages.
 func (l *Loader) Load(src []byte, filename string) (s *Scene, err error) {
-	d := &decoder{file: filename, origin: map[*yaml.Node]string{}, overlapTol: l.OverlapTolerance}
+	d := &decoder{file: filename, origin: map[*yaml.Node]string{}, overlapTol: l.OverlapTolerance, files: l.Files}
 	if d.overlapTol == 0 {
 		d.overlapTol = 1e-6
 	}
