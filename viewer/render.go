@@ -408,9 +408,16 @@ func (r *renderer) draw(in *frameInput) {
 	}
 	r.drawLines(r.staticVAO, r.staticVBO, nil, count, false)
 
+	// Ghosts: translucent, not writing depth, and pushed back a little so
+	// that where a ghost face lies in the plane of the simulated body's
+	// face (a logged pose equal to the simulated one) the body shows
+	// cleanly instead of flickering between the two.
 	gl.UseProgram(r.mesh.id)
 	gl.DepthMask(false)
+	gl.Enable(gl.POLYGON_OFFSET_FILL)
+	gl.PolygonOffset(1, 4)
 	r.drawInstances(r.dl.ghosts)
+	gl.Disable(gl.POLYGON_OFFSET_FILL)
 	gl.DepthMask(true)
 
 	gl.Disable(gl.DEPTH_TEST)
