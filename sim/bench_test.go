@@ -76,3 +76,77 @@ func TestStepAllocatesNothing(t *testing.T) {
 		}
 	}
 }
+
+// sevenJointArm is a seven-joint arm holding a pose by PD above a table
+// plane, beside three loose boxes resting on it.
+func sevenJointArm() *Model {
+	m := &Model{Gravity: down, Static: []StaticShape{floor(0)}, Materials: materials(0.5, 0)}
+	axes := []r3.Vec{{Z: 1}, {Y: 1}, {X: 1}, {Y: 1}, {X: 1}, {Y: 1}, {X: 1}}
+	var target []float64
+	for i, ax := range axes {
+		off := 0.25
+		if i == 0 {
+			off = 0
+		}
+		l := link("j"+string(rune('1'+i)), i-1, off, 0.25, 1.5-0.15*float64(i), ax)
+		if i == 0 {
+			l.Joint.Frame.Pos = r3.Vec{Z: 0.6}
+		}
+		l.Joint.Position = 0.1 * float64(i%3)
+		target = append(target, l.Joint.Position)
+		m.Bodies = append(m.Bodies, l)
+		m.Actuators = append(m.Actuators, Actuator{Name: "m" + string(rune('1'+i)), Body: i, EffortLimit: 200})
+	}
+	kp, kd := make([]float64, 7), make([]float64, 7)
+	for i := range kp {
+		kp[i], kd[i] = 800, 40
+	}
+	m.Controller = &PD{Kp: kp, Kd: kd, Targets: Table{Times: []float64{0}, Values: [][]float64{target}}}
+	for i := 0; i < 3; i++ {
+		m.Bodies = append(m.Bodies, boxBody("box"+string(rune('1'+i)), 0.5, r3.Vec{X: 0.1, Y: 0.1, Z: 0.1},
+			contact.Pose{Pos: r3.Vec{X: -0.5, Y: 0.3 * float64(i-1), Z: 0.05}, Rot: contact.IdentityQuat}))
+	}
+	return m
+}
+
+// BenchmarkArticulatedStep measures step cost for the robot scenes and the
+// share of step time spent in dynamics, collision and the contact solve.
+func BenchmarkArticulatedStep(b *testing.B) {
+	for _, c := range []struct {
+		name string
+		m    *Model
+	}{{"PusherCell", pusherCell()}, {"SevenJointArmThreeBoxes", sevenJointArm()}} {
+		b.Run(c.name, func(b *testing.B) {
+			s := mustSim(b, c.m, Settings{})
+			for i := 0; i < 300; i++ {
+				if err := s.Step(); err != nil {
+					b.Fatal(err)
+				}
+			}
+			prof := &StepProfile{}
+			s.Profile = prof
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				if s.Time() > 2 {
+					b.StopTimer()
+					s.Profile = nil
+					s.Reset()
+					for j := 0; j < 300; j++ {
+						s.Step()
+					}
+					s.Profile = prof
+					b.StartTimer()
+				}
+				if err := s.Step(); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.StopTimer()
+			total := float64(prof.Dynamics + prof.Collision + prof.Contact)
+			b.ReportMetric(100*float64(prof.Dynamics)/total, "%dynamics")
+			b.ReportMetric(100*float64(prof.Collision)/total, "%collision")
+			b.ReportMetric(100*float64(prof.Contact)/total, "%contact")
+		})
+	}
+}

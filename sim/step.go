@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"strings"
+	"time"
 
 	"stickslip/contact"
 
@@ -139,6 +140,24 @@ type Sim struct {
 	solver   *contact.Solver
 
 	lastStats contact.SolveStats
+
+	// Profile, when not nil, accumulates the time spent in each stage.
+	Profile *StepProfile
+}
+
+// StepProfile is the time spent in each stage of Step.
+type StepProfile struct {
+	Dynamics  time.Duration // kinematics, mass matrix, bias, free velocity, integration
+	Collision time.Duration // broad and narrow phase
+	Contact   time.Duration // building and solving the contact problem
+}
+
+func (s *Sim) lap(d *time.Duration, start *time.Time) {
+	if s.Profile != nil {
+		now := time.Now()
+		*d += now.Sub(*start)
+		*start = now
+	}
 }
 
 // New returns a simulator at the model's initial state.
@@ -423,6 +442,10 @@ func (s *Sim) Step() error {
 	m, lay, kin := s.model, s.lay, s.kin
 	h := s.set.TimeStep
 
+	var clock time.Time
+	if s.Profile != nil {
+		clock = time.Now()
+	}
 	copy(s.q0, s.q)
 	copy(s.v0, s.v)
 	s.control()
@@ -461,13 +484,22 @@ func (s *Sim) Step() error {
 		copy(s.vpass[pass], s.vfree)
 	}
 
+	if s.Profile != nil {
+		s.lap(&s.Profile.Dynamics, &clock)
+	}
 	s.collide()
 	s.findLimits()
+	if s.Profile != nil {
+		s.lap(&s.Profile.Collision, &clock)
+	}
 	if len(s.contacts) == 0 && len(s.limits) == 0 {
 		copy(s.v, s.vfree)
 		s.lastStats = contact.SolveStats{}
 	} else if err := s.solveContacts(); err != nil {
 		return err
+	}
+	if s.Profile != nil {
+		s.lap(&s.Profile.Contact, &clock)
 	}
 	s.integrate()
 	if s.tan != nil {
@@ -478,6 +510,9 @@ func (s *Sim) Step() error {
 	s.t = float64(s.step+1) * h
 	s.step++
 	kin.update(m, lay, s.q, s.v)
+	if s.Profile != nil {
+		s.lap(&s.Profile.Dynamics, &clock)
+	}
 	return nil
 }
 

@@ -22,12 +22,18 @@ type tangentSweep struct {
 	djac, dbeff, dlam, dmu, w, tmp            []float64
 }
 
-func newTangents(s *Sim, params []Param) *tangentSweep {
+func newTangents(s *Sim, params []Param) *tangentSweep { return newTangentColumns(s, 0, params) }
+
+// newTangentColumns returns a sweep with nState columns that carry no
+// model tangent (state directions) followed by one column per parameter.
+func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 	nq, nv := s.lay.nq, s.lay.nv
 	t := &tangentSweep{params: params, kt: newKinTangent(len(s.model.Bodies), nv)}
-	for j := range params {
+	for j := 0; j < nState+len(params); j++ {
 		dm := newModelTangent(s.model, nq, nv)
-		dm.seed(s, &params[j])
+		if j >= nState {
+			dm.seed(s, &params[j-nState])
+		}
 		t.dm = append(t.dm, dm)
 		t.dq = append(t.dq, append([]float64(nil), dm.startQ...))
 		t.dv = append(t.dv, append([]float64(nil), dm.startV...))
@@ -44,7 +50,7 @@ func newTangents(s *Sim, params []Param) *tangentSweep {
 // the start of the step, q0 and v0, the midpoint passes, contacts and the
 // solver's last factorization).
 func (t *tangentSweep) step(s *Sim) error {
-	for j := range t.params {
+	for j := range t.dq {
 		if err := t.column(s, j); err != nil {
 			return err
 		}
@@ -177,15 +183,15 @@ func (t *tangentSweep) mulDA(s *Sim, x, dst []float64) {
 }
 
 // shapeTwist returns the tangent twist of geometry g's frame.
-func (t *tangentSweep) shapeTwist(s *Sim, g int) shimTwist {
+func (t *tangentSweep) shapeTwist(s *Sim, g int) contact.Twist {
 	owner := s.geoms[g].owner
 	if owner < 0 {
-		return shimTwist{}
+		return contact.Twist{}
 	}
 	o := s.kin.pose[owner].Pos
 	so := s.geomPoses[g].Pos
 	dphi := t.kt.dphi[owner]
-	return shimTwist{V: r3.Add(t.kt.dp[owner], r3.Cross(dphi, r3.Sub(so, o))), W: dphi}
+	return contact.Twist{V: r3.Add(t.kt.dp[owner], r3.Cross(dphi, r3.Sub(so, o))), W: dphi}
 }
 
 // djacRow adds to row the tangent of body b's contact Jacobian row dir·J_b(p)
@@ -215,7 +221,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 	for k := range s.contacts {
 		c := &s.contacts[k]
 		ga, gb := c.geomA, c.geomB
-		dpos, dn, dgap := shimPointTangent(s.geoms[ga].shape, s.geomPoses[ga], s.geoms[gb].shape, s.geomPoses[gb],
+		dpos, dn, dgap := contact.PointTangent(s.geoms[ga].shape, s.geomPoses[ga], s.geoms[gb].shape, s.geomPoses[gb],
 			c.Point, t.shapeTwist(s, ga), t.shapeTwist(s, gb))
 		dt1, dt2 := tangentBasis(c.Point.Normal, dn)
 		p := c.Point.Pos
