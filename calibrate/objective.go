@@ -1,0 +1,802 @@
+package calibrate
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"slices"
+	"strings"
+	"sync"
+
+	"stickslip/contact"
+	"stickslip/sim"
+
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/spatial/r3"
+)
+
+// Noise gives the standard deviation σ of each logged channel; residuals
+// are divided by it. Zero fields take their defaults.
+type Noise struct {
+	// Position of a body (m, default 1e-3), Rotation of a body (rad,
+	// default 1e-2) and Joint position (rad or m, default 1e-3).
+	Position, Rotation, Joint float64
+	// Channels overrides single channels: "carton.x", "carton.rotation",
+	// "elbow.q".
+	Channels map[string]float64
+}
+
+func (n Noise) withDefaults() Noise {
+	if n.Position == 0 {
+		n.Position = 1e-3
+	}
+	if n.Rotation == 0 {
+		n.Rotation = 1e-2
+	}
+	if n.Joint == 0 {
+		n.Joint = 1e-3
+	}
+	return n
+}
+
+func (n *Noise) sigma(channel string, def float64) float64 {
+	if v, ok := n.Channels[channel]; ok {
+		return v
+	}
+	return def
+}
+
+// Options tune a fit. The zero value selects the defaults on each field.
+type Options struct {
+	// Window is the length of a multiple-shooting window in seconds
+	// (default 0.5): each window restarts from the logged state.
+	Window float64
+	Noise  Noise
+	// Smoothing is the schedule of contact smoothing κ
+	// (sim.Settings.Solver.Smoothing), one Levenberg–Marquardt stage per
+	// value, large to small (default [0]: exact contact).
+	Smoothing []float64
+	// Iterations bounds the steps per stage (default 50).
+	Iterations int
+	// Starts is the number of starting points tried in the first stage
+	// (default 1: the initial values alone); Seed seeds the others.
+	Starts int
+	Seed   uint64
+	// Workers is the number of windows simulated at once (default
+	// GOMAXPROCS). Results do not depend on it.
+	Workers int
+}
+
+func (o Options) withDefaults() Options {
+	if o.Window == 0 {
+		o.Window = 0.5
+	}
+	o.Noise = o.Noise.withDefaults()
+	if len(o.Smoothing) == 0 {
+		o.Smoothing = []float64{0}
+	}
+	if o.Iterations == 0 {
+		o.Iterations = 50
+	}
+	if o.Starts == 0 {
+		o.Starts = 1
+	}
+	if o.Workers <= 0 {
+		o.Workers = runtime.GOMAXPROCS(0)
+	}
+	return o
+}
+
+// Channel kinds of residual rows.
+const (
+	kindPos = iota
+	kindRot
+	kindJoint
+)
+
+// KindNames name the channel kinds in reports.
+var KindNames = [...]string{"position", "rotation", "joint"}
+
+// resRow is one compared quantity at one sample: a position component, an
+// orientation (three rows) or a joint position.
+type resRow struct {
+	kind   uint8
+	axis   uint8
+	k      int32 // sample index within the window
+	idx    int32 // body index, or single-DOF joint index in run-file order
+	sigma  float64
+	want   float64      // logged position or joint value
+	wantQ  contact.Quat // logged orientation
+	column int32        // log column, for per-channel summaries
+}
+
+func (r *resRow) n() int {
+	if r.kind == kindRot {
+		return 3
+	}
+	return 1
+}
+
+// window is one multiple-shooting segment of a log.
+type window struct {
+	log   int
+	row0  int // log row of the starting state
+	start sim.Frame
+	times []float64
+	rows  []resRow
+	off   int // first residual row
+	n     int // residual rows
+}
+
+// boundLog is a log matched to a model's bodies and joints.
+type boundLog struct {
+	log     *Log
+	pos     [][3]int // per body: columns of x, y, z (−1 if absent)
+	rot     [][4]int // per body: qw, qx, qy, qz
+	vel     [][6]int // per body: vx, vy, vz, wx, wy, wz
+	jq, jqd []int    // per single-DOF joint: q, qd
+	// Ignored lists columns that name nothing the fit uses.
+	Ignored []string
+}
+
+// Objective is the weighted residual vector of a set of logs as a
+// function of the free parameters, cut into windows.
+type Objective struct {
+	model    *sim.Model
+	settings sim.Settings
+	params   []FreeParam
+	sp       []sim.Param
+	logs     []*boundLog
+	windows  []*window
+	nData    int
+	priors   []int // parameter indices with priors
+	workers  int
+	// Kappa is the contact smoothing the next evaluations use.
+	Kappa  float64
+	joints []int // body index of each single-DOF joint, run-file order
+}
+
+// NewObjective matches logs to the model and cuts them into windows of
+// opts.Window seconds. params must come from ResolveParams.
+func NewObjective(m *sim.Model, set sim.Settings, logs []*Log, params []FreeParam, opts Options) (*Objective, error) {
+	opts = opts.withDefaults()
+	if !(opts.Window > 0) {
+		return nil, fmt.Errorf("window %v: must be positive seconds", opts.Window)
+	}
+	o := &Objective{model: m, settings: set.WithDefaults(), params: params, workers: opts.Workers}
+	for _, p := range params {
+		o.sp = append(o.sp, p.param)
+	}
+	for i, b := range m.Bodies {
+		if k := b.Joint.Kind; k == sim.Revolute || k == sim.Prismatic {
+			o.joints = append(o.joints, i)
+		}
+	}
+	for li, lg := range logs {
+		bl, err := o.bind(lg, opts.Noise)
+		if err != nil {
+			return nil, err
+		}
+		o.logs = append(o.logs, bl)
+		if err := o.cut(li, bl, opts); err != nil {
+			return nil, err
+		}
+	}
+	for _, w := range o.windows {
+		w.off = o.nData
+		o.nData += w.n
+	}
+	if o.nData == 0 {
+		return nil, errors.New("the logs hold no samples to compare with the simulation")
+	}
+	for j, p := range params {
+		if p.PriorSD > 0 {
+			o.priors = append(o.priors, j)
+		}
+	}
+	return o, nil
+}
+
+// bind finds the columns of each body and joint in lg.
+func (o *Objective) bind(lg *Log, noise Noise) (*boundLog, error) {
+	m := o.model
+	bl := &boundLog{log: lg}
+	used := make([]bool, len(lg.Columns))
+	col := func(name string) int {
+		i := slices.Index(lg.Columns, name)
+		if i >= 0 {
+			used[i] = true
+		}
+		return i
+	}
+	missing := func(what string, names []string) error {
+		return &sim.FileError{File: lg.File, Line: 1, Err: fmt.Errorf("missing columns %s: %s; windows restart from the logged state, so the log needs them (columns present: %s)",
+			strings.Join(names, ", "), what, strings.Join(lg.Columns, ", "))}
+	}
+	for _, b := range m.Bodies {
+		var p [3]int
+		var r [4]int
+		var v [6]int
+		for c := range p {
+			p[c] = col(b.Name + "." + sim.BodyColumns[c])
+		}
+		for c := range r {
+			r[c] = col(b.Name + "." + sim.BodyColumns[3+c])
+		}
+		for c := range v {
+			v[c] = col(b.Name + "." + sim.BodyColumns[7+c])
+		}
+		if b.Joint.Kind == sim.Free {
+			var miss []string
+			for c, idx := range append(p[:], r[:]...) {
+				if idx < 0 {
+					miss = append(miss, b.Name+"."+sim.BodyColumns[c])
+				}
+			}
+			if len(miss) > 0 {
+				return nil, missing(fmt.Sprintf("%s is a free body, and every free body needs its position and orientation", b.Name), miss)
+			}
+		}
+		bl.pos = append(bl.pos, p)
+		bl.rot = append(bl.rot, r)
+		bl.vel = append(bl.vel, v)
+	}
+	for _, bi := range o.joints {
+		name := m.Bodies[bi].Joint.Name
+		q := col(name + ".q")
+		if q < 0 {
+			return nil, missing(fmt.Sprintf("joint %s needs its position", name), []string{name + ".q"})
+		}
+		bl.jq = append(bl.jq, q)
+		bl.jqd = append(bl.jqd, col(name+".qd"))
+		col(name + ".tau")
+		col(name + ".effort")
+	}
+	for i, u := range used {
+		if !u {
+			bl.Ignored = append(bl.Ignored, lg.Columns[i])
+		}
+	}
+	return bl, nil
+}
+
+// cut splits log li into windows and lists their residual rows.
+func (o *Objective) cut(li int, bl *boundLog, opts Options) error {
+	lg := bl.log
+	m := o.model
+	n := len(lg.T)
+	ok := func(i int) bool { return o.completeState(bl, i) }
+	i0 := 0
+	for i0 < n && !ok(i0) {
+		i0++
+	}
+	if i0 == n {
+		return &sim.FileError{File: lg.File, Err: errors.New("no row holds a complete state (every free body's position and orientation, every joint's position) to start a window from")}
+	}
+	for i0 < n-1 {
+		end := i0 + 1
+		for end < n && lg.T[end] <= lg.T[i0]+opts.Window*(1+1e-9) {
+			end++
+		}
+		w := &window{log: li, row0: i0}
+		start, err := o.frameAt(bl, i0)
+		if err != nil {
+			return err
+		}
+		w.start = start
+		for i := i0 + 1; i < end; i++ {
+			k := int32(len(w.times))
+			added := false
+			for b := range m.Bodies {
+				for c, ci := range bl.pos[b] {
+					if ci >= 0 && !math.IsNaN(lg.Values[ci][i]) {
+						name := lg.Columns[ci]
+						w.rows = append(w.rows, resRow{kind: kindPos, axis: uint8(c), k: k, idx: int32(b), column: int32(ci),
+							sigma: opts.Noise.sigma(name, opts.Noise.Position), want: lg.Values[ci][i]})
+						added = true
+					}
+				}
+				if q, good := quatAt(lg, bl.rot[b], i); good {
+					name := m.Bodies[b].Name + ".rotation"
+					w.rows = append(w.rows, resRow{kind: kindRot, k: k, idx: int32(b), column: int32(bl.rot[b][0]),
+						sigma: opts.Noise.sigma(name, opts.Noise.Rotation), wantQ: q})
+					added = true
+				}
+			}
+			for j, ci := range bl.jq {
+				if !math.IsNaN(lg.Values[ci][i]) {
+					w.rows = append(w.rows, resRow{kind: kindJoint, k: k, idx: int32(j), column: int32(ci),
+						sigma: opts.Noise.sigma(lg.Columns[ci], opts.Noise.Joint), want: lg.Values[ci][i]})
+					added = true
+				}
+			}
+			if added {
+				w.times = append(w.times, lg.T[i])
+			}
+		}
+		for _, r := range w.rows {
+			w.n += r.n()
+		}
+		if w.n > 0 {
+			o.windows = append(o.windows, w)
+		}
+		// The next window starts at the last sample of this one, or
+		// later if that row lacks part of the state.
+		next := end - 1
+		for next < n && !ok(next) {
+			next++
+		}
+		if next <= i0 {
+			next = i0 + 1
+		}
+		i0 = next
+	}
+	return nil
+}
+
+// completeState reports whether row i holds every free body's pose and
+// every joint's position.
+func (o *Objective) completeState(bl *boundLog, i int) bool {
+	lg := bl.log
+	for b, body := range o.model.Bodies {
+		if body.Joint.Kind != sim.Free {
+			continue
+		}
+		for _, c := range append(bl.pos[b][:], bl.rot[b][:]...) {
+			if math.IsNaN(lg.Values[c][i]) {
+				return false
+			}
+		}
+	}
+	for _, c := range bl.jq {
+		if math.IsNaN(lg.Values[c][i]) {
+			return false
+		}
+	}
+	return true
+}
+
+func quatAt(lg *Log, cols [4]int, i int) (contact.Quat, bool) {
+	var v [4]float64
+	for c, ci := range cols {
+		if ci < 0 || math.IsNaN(lg.Values[ci][i]) {
+			return contact.Quat{}, false
+		}
+		v[c] = lg.Values[ci][i]
+	}
+	q := contact.Quat{W: v[0], X: v[1], Y: v[2], Z: v[3]}
+	n := math.Sqrt(q.W*q.W + q.X*q.X + q.Y*q.Y + q.Z*q.Z)
+	if !(n > 0.5 && n < 1.5) {
+		return contact.Quat{}, false
+	}
+	return q.Normalize(), true
+}
+
+// rateHalfWidth is how many samples on each side of a window start feed the
+// velocity estimate.
+const rateHalfWidth = 3
+
+// frameAt returns the logged state at row i as a frame. Velocities the log
+// lacks there are estimated from nearby positions by a local quadratic
+// least-squares fit (data preprocessing; the fit's derivatives never use
+// finite differences).
+func (o *Objective) frameAt(bl *boundLog, i int) (sim.Frame, error) {
+	lg := bl.log
+	m := o.model
+	f := sim.Frame{T: lg.T[i], Bodies: make([]sim.BodyFrame, len(m.Bodies)), Joints: make([]sim.JointFrame, len(o.joints))}
+	val := func(c int) float64 {
+		if c < 0 {
+			return math.NaN()
+		}
+		return lg.Values[c][i]
+	}
+	for b, body := range m.Bodies {
+		if body.Joint.Kind != sim.Free {
+			continue
+		}
+		p, r, v := bl.pos[b], bl.rot[b], bl.vel[b]
+		q, good := quatAt(lg, r, i)
+		if !good {
+			return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: body.Name + ".qw",
+				Err: errors.New("orientation is not a unit quaternion")}
+		}
+		bf := sim.BodyFrame{Pose: contact.Pose{Pos: r3.Vec{X: val(p[0]), Y: val(p[1]), Z: val(p[2])}, Rot: q}}
+		lin := [3]float64{val(v[0]), val(v[1]), val(v[2])}
+		for c := range lin {
+			if math.IsNaN(lin[c]) {
+				lin[c] = rate(lg.T, lg.Values[p[c]], i)
+			}
+		}
+		ang := [3]float64{val(v[3]), val(v[4]), val(v[5])}
+		if math.IsNaN(ang[0]) || math.IsNaN(ang[1]) || math.IsNaN(ang[2]) {
+			ang = angularRate(lg, r, i)
+		}
+		bf.Linear = r3.Vec{X: lin[0], Y: lin[1], Z: lin[2]}
+		bf.Angular = r3.Vec{X: ang[0], Y: ang[1], Z: ang[2]}
+		for _, x := range append(lin[:], ang[:]...) {
+			if math.IsNaN(x) {
+				return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: body.Name,
+					Err: errors.New("cannot estimate the velocity: too few logged positions near this row")}
+			}
+		}
+		f.Bodies[b] = bf
+	}
+	for j := range o.joints {
+		q := val(bl.jq[j])
+		qd := val(bl.jqd[j])
+		if math.IsNaN(qd) {
+			qd = rate(lg.T, lg.Values[bl.jq[j]], i)
+		}
+		if math.IsNaN(qd) {
+			return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: lg.Columns[bl.jq[j]],
+				Err: errors.New("cannot estimate the joint velocity: too few logged positions near this row")}
+		}
+		f.Joints[j] = sim.JointFrame{Q: q, QD: qd}
+	}
+	return f, nil
+}
+
+// rate estimates dv/dt at row i from up to rateHalfWidth finite samples
+// each side, by least squares on a quadratic in t − t_i (a line when only
+// two samples are available).
+func rate(t, v []float64, i int) float64 {
+	var ts, vs []float64
+	collect := func(step int) {
+		for j, n := i+step, 0; j >= 0 && j < len(t) && n < rateHalfWidth; j += step {
+			if !math.IsNaN(v[j]) {
+				ts, vs = append(ts, t[j]-t[i]), append(vs, v[j])
+				n++
+			}
+		}
+	}
+	if !math.IsNaN(v[i]) {
+		ts, vs = append(ts, 0), append(vs, v[i])
+	}
+	collect(-1)
+	collect(1)
+	return polyRate(ts, vs)
+}
+
+// polyRate fits v ≈ a + b·t (+ c·t²) by least squares and returns b.
+func polyRate(ts, vs []float64) float64 {
+	n := len(ts)
+	if n < 2 {
+		return math.NaN()
+	}
+	deg := 2
+	if n < 4 {
+		deg = 1
+	}
+	scale := 0.0
+	for _, t := range ts {
+		scale = math.Max(scale, math.Abs(t))
+	}
+	if scale == 0 {
+		return math.NaN()
+	}
+	X := mat.NewDense(n, deg+1, nil)
+	for r, t := range ts {
+		s := t / scale
+		for c := 0; c <= deg; c++ {
+			X.Set(r, c, math.Pow(s, float64(c)))
+		}
+	}
+	var beta mat.VecDense
+	if err := beta.SolveVec(X, mat.NewVecDense(n, slices.Clone(vs))); err != nil {
+		return math.NaN()
+	}
+	return beta.AtVec(1) / scale
+}
+
+// angularRate estimates the world angular velocity at row i from the
+// rotation vectors of nearby orientations relative to row i.
+func angularRate(lg *Log, cols [4]int, i int) [3]float64 {
+	out := [3]float64{math.NaN(), math.NaN(), math.NaN()}
+	q0, ok := quatAt(lg, cols, i)
+	if !ok {
+		return out
+	}
+	var ts []float64
+	var phi [3][]float64
+	add := func(j int) bool {
+		q, ok := quatAt(lg, cols, j)
+		if !ok {
+			return false
+		}
+		p := rotationVector(q.Mul(q0.Conj()))
+		ts = append(ts, lg.T[j]-lg.T[i])
+		phi[0], phi[1], phi[2] = append(phi[0], p.X), append(phi[1], p.Y), append(phi[2], p.Z)
+		return true
+	}
+	add(i)
+	for _, step := range []int{-1, 1} {
+		for j, n := i+step, 0; j >= 0 && j < len(lg.T) && n < rateHalfWidth; j += step {
+			if add(j) {
+				n++
+			}
+		}
+	}
+	for c := range out {
+		out[c] = polyRate(ts, phi[c])
+	}
+	return out
+}
+
+// rotationVector returns φ with exp([φ]×) = R(q), the rotation taking the
+// shorter way.
+func rotationVector(q contact.Quat) r3.Vec {
+	if q.W < 0 {
+		q = contact.Quat{W: -q.W, X: -q.X, Y: -q.Y, Z: -q.Z}
+	}
+	v := r3.Vec{X: q.X, Y: q.Y, Z: q.Z}
+	s := r3.Norm(v)
+	if s < 1e-300 {
+		return r3.Scale(2, v)
+	}
+	return r3.Scale(2*math.Atan2(s, q.W)/s, v)
+}
+
+// invLeftJacobian returns J_l⁻¹(φ) applied to d: how the rotation vector
+// φ of exp([φ]×) changes when the rotation is perturbed on the left by
+// exp([δ]×), δ = d. (Standard SO(3) calculus.)
+func invLeftJacobian(phi, d r3.Vec) r3.Vec {
+	th := r3.Norm(phi)
+	c1 := r3.Cross(phi, d)
+	c2 := r3.Cross(phi, c1)
+	var k float64
+	if th < 1e-4 {
+		k = 1.0/12 + th*th/720
+	} else {
+		k = 1/(th*th) - (1+math.Cos(th))/(2*th*math.Sin(th))
+	}
+	return r3.Add(r3.Sub(d, r3.Scale(0.5, c1)), r3.Scale(k, c2))
+}
+
+// M returns the number of residual rows: data rows, then one per prior.
+func (o *Objective) M() int { return o.nData + len(o.priors) }
+
+// DataRows returns the number of data rows.
+func (o *Objective) DataRows() int { return o.nData }
+
+// Windows returns the number of windows.
+func (o *Objective) Windows() int { return len(o.windows) }
+
+// Ignored returns the columns of log i that the fit does not use.
+func (o *Objective) Ignored(i int) []string { return o.logs[i].Ignored }
+
+// Problem returns the least-squares problem over the free parameters.
+func (o *Objective) Problem() Problem {
+	lo := make([]float64, len(o.params))
+	hi := make([]float64, len(o.params))
+	for j, p := range o.params {
+		lo[j], hi[j] = p.Lower, p.Upper
+	}
+	return Problem{M: o.M(), Func: o.Residuals, Jac: o.Jacobian, Lower: lo, Upper: hi}
+}
+
+// Residuals writes the weighted residuals at θ into dst.
+func (o *Objective) Residuals(dst, theta []float64) error {
+	return o.eval(dst, nil, theta, nil)
+}
+
+// Jacobian writes ∂r/∂θ at θ into dst.
+func (o *Objective) Jacobian(dst *mat.Dense, theta []float64) error {
+	r := make([]float64, o.M())
+	return o.eval(r, dst, theta, nil)
+}
+
+// model returns a copy of the model with θ applied.
+func (o *Objective) modelAt(theta []float64) *sim.Model {
+	m := sim.CopyModel(o.model)
+	for j := range o.sp {
+		o.sp[j].Set(m, theta[j])
+	}
+	return m
+}
+
+// eval simulates every window at θ, concurrently, writing residuals (and
+// the Jacobian if J is not nil) into rows fixed per window, so that the
+// result is the same for any number of workers. If frames is not nil the
+// simulated frames of window w go to frames[w].
+func (o *Objective) eval(r []float64, J *mat.Dense, theta []float64, frames [][]sim.Frame) error {
+	if len(theta) != len(o.params) || len(r) != o.M() {
+		return fmt.Errorf("calibrate: evaluation with %d parameters and %d rows, want %d and %d", len(theta), len(r), len(o.params), o.M())
+	}
+	for j, p := range o.params {
+		if err := p.param.CheckValue(theta[j]); err != nil {
+			return err
+		}
+	}
+	m := o.modelAt(theta)
+	set := o.settings
+	set.Solver.Smoothing = o.Kappa
+	errs := make([]error, len(o.windows))
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for range min(o.workers, len(o.windows)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for w := range next {
+				f, err := o.evalWindow(o.windows[w], m, set, r, J)
+				errs[w] = err
+				if frames != nil {
+					frames[w] = f
+				}
+			}
+		}()
+	}
+	for w := range o.windows {
+		next <- w
+	}
+	close(next)
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return err
+		}
+	}
+	for i, j := range o.priors {
+		p := &o.params[j]
+		r[o.nData+i] = (theta[j] - p.PriorMean) / p.PriorSD
+		if J != nil {
+			for c := range o.params {
+				J.Set(o.nData+i, c, 0)
+			}
+			J.Set(o.nData+i, j, 1/p.PriorSD)
+		}
+	}
+	return nil
+}
+
+func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []float64, J *mat.Dense) ([]sim.Frame, error) {
+	lg := o.logs[w.log].log
+	where := func(err error) error {
+		return fmt.Errorf("%s, window starting at t = %g s (line %d): %w", lg.File, w.start.T, lg.Lines[w.row0], err)
+	}
+	s, err := sim.New(m, set)
+	if err != nil {
+		return nil, where(err)
+	}
+	if err := s.SetFrame(&w.start); err != nil {
+		return nil, where(err)
+	}
+	var params []sim.Param
+	if J != nil {
+		params = o.sp
+	}
+	smp, err := s.Sample(params, w.times)
+	if err != nil {
+		return nil, where(err)
+	}
+	np := len(o.params)
+	row := w.off
+	for i := range w.rows {
+		rr := &w.rows[i]
+		fr := &smp.Frames[rr.k]
+		inv := 1 / rr.sigma
+		switch rr.kind {
+		case kindPos:
+			p := fr.Bodies[rr.idx].Pose.Pos
+			r[row] = (component(p, int(rr.axis)) - rr.want) * inv
+			if J != nil {
+				for j := range np {
+					J.Set(row, j, component(smp.DPos[rr.k][rr.idx][j], int(rr.axis))*inv)
+				}
+			}
+			row++
+		case kindRot:
+			q := fr.Bodies[rr.idx].Pose.Rot
+			phi := rotationVector(q.Mul(rr.wantQ.Conj()))
+			r[row], r[row+1], r[row+2] = phi.X*inv, phi.Y*inv, phi.Z*inv
+			if J != nil {
+				for j := range np {
+					d := invLeftJacobian(phi, smp.DRot[rr.k][rr.idx][j])
+					J.Set(row, j, d.X*inv)
+					J.Set(row+1, j, d.Y*inv)
+					J.Set(row+2, j, d.Z*inv)
+				}
+			}
+			row += 3
+		case kindJoint:
+			r[row] = (fr.Joints[rr.idx].Q - rr.want) * inv
+			if J != nil {
+				for j := range np {
+					J.Set(row, j, smp.DJoint[rr.k][rr.idx][j]*inv)
+				}
+			}
+			row++
+		}
+	}
+	return smp.Frames, nil
+}
+
+func component(v r3.Vec, i int) float64 {
+	switch i {
+	case 0:
+		return v.X
+	case 1:
+		return v.Y
+	}
+	return v.Z
+}
+
+// ErrorSummary measures how far simulation and logs are apart.
+type ErrorSummary struct {
+	// Loss is ½‖r‖² over the data rows (whitened), RMS the root mean
+	// square whitened residual.
+	Loss float64 `json:"loss"`
+	RMS  float64 `json:"rms_whitened"`
+	// Position (m), Rotation (rad) and Joint (rad or m) are root mean
+	// square errors in natural units; NaN (null in JSON) when no channel
+	// of that kind is logged.
+	Position float64 `json:"rms_position_m"`
+	Rotation float64 `json:"rms_rotation_rad"`
+	Joint    float64 `json:"rms_joint"`
+	Rows     int     `json:"rows"`
+}
+
+// Errors evaluates the logs at θ and summarizes the misfit.
+func (o *Objective) Errors(theta []float64) (ErrorSummary, error) {
+	r := make([]float64, o.M())
+	if err := o.eval(r, nil, theta, nil); err != nil {
+		return ErrorSummary{}, err
+	}
+	return o.summarize(r), nil
+}
+
+func (o *Objective) summarize(r []float64) ErrorSummary {
+	var ss [3]float64
+	var cnt [3]int
+	total := 0.0
+	for _, w := range o.windows {
+		row := w.off
+		for _, rr := range w.rows {
+			for c := 0; c < rr.n(); c++ {
+				v := r[row] * rr.sigma
+				if rr.kind == kindRot {
+					// The three components add up to the squared angle.
+					ss[kindRot] += v * v
+					if c == 0 {
+						cnt[kindRot]++
+					}
+				} else {
+					ss[rr.kind] += v * v
+					cnt[rr.kind]++
+				}
+				total += r[row] * r[row]
+				row++
+			}
+		}
+	}
+	rms := func(k int) float64 {
+		if cnt[k] == 0 {
+			return math.NaN()
+		}
+		return math.Sqrt(ss[k] / float64(cnt[k]))
+	}
+	return ErrorSummary{Loss: total / 2, RMS: math.Sqrt(total / float64(o.nData)), Position: rms(kindPos), Rotation: rms(kindRot), Joint: rms(kindJoint), Rows: o.nData}
+}
+
+// Trace is a simulated trajectory of one window beside the log.
+type Trace struct {
+	Log    int
+	Times  []float64
+	Frames []sim.Frame
+}
+
+// Simulate runs every window at θ and returns their frames and the
+// residuals, for plots.
+func (o *Objective) Simulate(theta []float64) ([]Trace, []float64, error) {
+	r := make([]float64, o.M())
+	frames := make([][]sim.Frame, len(o.windows))
+	if err := o.eval(r, nil, theta, frames); err != nil {
+		return nil, nil, err
+	}
+	out := make([]Trace, len(o.windows))
+	for i, w := range o.windows {
+		out[i] = Trace{Log: w.log, Times: w.times, Frames: frames[i]}
+	}
+	return out, r, nil
+}
