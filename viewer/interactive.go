@@ -67,11 +67,12 @@ func View(s *Scene, opt ViewOptions) error {
 			gl.Enable(gl.MULTISAMPLE)
 			in := ctl.frameInput()
 			r.draw(&in)
-			win.SwapBuffers()
 			if e := gl.GetError(); e != gl.NO_ERROR {
 				return fmt.Errorf("OpenGL error 0x%x while drawing frame %d", e, in.frame)
 			}
-			if viewTestHook != nil && viewTestHook(ctl, iter) {
+			stop := viewTestHook != nil && viewTestHook(ctl, iter)
+			win.SwapBuffers()
+			if stop {
 				break
 			}
 			// Without vertical sync (as under Xvfb) keep to about 60 frames
@@ -84,8 +85,10 @@ func View(s *Scene, opt ViewOptions) error {
 	})
 }
 
-// viewTestHook, when set by tests, runs after each drawn frame of View on
-// the GL thread; returning true closes the window.
+// viewTestHook, when set by tests, runs after each frame of View is drawn
+// and before it is shown, on the GL thread with the window's context
+// current (so it may read the back buffer); returning true closes the
+// window.
 var viewTestHook func(c *controller, iter int) bool
 
 type dragMode int

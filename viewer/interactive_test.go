@@ -1,10 +1,13 @@
 package viewer
 
 import (
+	"image/color"
 	"math"
 	"testing"
 
+	"github.com/go-gl/gl/v3.3-core/gl"
 	"github.com/go-gl/glfw/v3.3/glfw"
+	"gonum.org/v1/gonum/spatial/r3"
 )
 
 func newTestController(t *testing.T) (*controller, *Scene) {
@@ -138,9 +141,15 @@ func TestView(t *testing.T) {
 		t.Fatal(err)
 	}
 	var frames []int
+	var boxPixel [4]uint8
 	viewTestHook = func(c *controller, iter int) bool {
 		switch iter {
 		case 0:
+			// The window shows the body where the camera projects it: read
+			// the back buffer (GL rows run bottom-up).
+			x, y, _ := c.cam.Project(r3.Vec{Z: 0.2}, c.width, c.height)
+			gl.ReadBuffer(gl.BACK)
+			gl.ReadPixels(int32(x), int32(c.height-1-int(y)), 1, 1, gl.RGBA, gl.UNSIGNED_BYTE, gl.Ptr(&boxPixel[0]))
 			c.key(glfw.KeyPageDown, 0)
 			c.key(glfw.KeyH, 0)
 		case 1:
@@ -151,8 +160,11 @@ func TestView(t *testing.T) {
 		return iter == 5
 	}
 	defer func() { viewTestHook = nil }()
-	if err := View(s, ViewOptions{Width: 320, Height: 240}); err != nil {
+	if err := View(s, ViewOptions{Width: 320, Height: 240, Style: Style{HideText: true}}); err != nil {
 		t.Fatal(err)
+	}
+	if p := (color.RGBA{boxPixel[0], boxPixel[1], boxPixel[2], 255}); !sameHue(p, BodyColor(0)) {
+		t.Errorf("window pixel at the projected box top is %v, want a shade of %v", p, BodyColor(0))
 	}
 	if len(frames) != 6 || frames[0] != 50 || frames[5] <= 50 {
 		t.Errorf("frames shown %v: want 6 frames, the event at 50, then playing on", frames)
