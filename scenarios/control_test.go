@@ -307,7 +307,7 @@ func TestControlOverrides(t *testing.T) {
 	// Switching a table from rows to a file, as docs/scene-format.md says.
 	src, _, _ := Builtin("pusher-cell")
 	s, err = loadFS(string(src), map[string]string{"other.csv": "t,shoulder\n0,0\n1,0.5\n"},
-		"controller.pd.targets.rows=", "controller.pd.targets.columns=", "controller.pd.targets.file=other.csv", "controller.pd.kp.elbow=")
+		"controller.pd.targets.rows=", "controller.pd.targets.columns=", "controller.pd.targets.file=other.csv", "controller.pd.kp.elbow=", "controller.pd.kd.elbow=")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -580,3 +580,68 @@ const controlScene = armActuators + `controller:
         - [0, 5]
         - [0.5, -5]
 `
+
+// TestRobotBuiltinParameters pins what the robot scenes promise in their
+// descriptions and in docs/scene-format.md.
+func TestRobotBuiltinParameters(t *testing.T) {
+	get := func(name string) *sim.Model {
+		s, err := LoadBuiltin(name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return s.Model
+	}
+	m := get("pusher-cell")
+	// Friction is fitted per named pair: card on steel must be a pair of
+	// its own, not the default.
+	if len(m.Materials.Pairs) != 1 || m.Materials.Lookup("card", "steel").Friction != 0.35 {
+		t.Errorf("pusher-cell: pairs %+v", m.Materials.Pairs)
+	}
+	if m.Static[0].Material != "steel" || m.Bodies[2].Name != "carton" || m.Bodies[2].Material != "card" || m.Bodies[2].Mass != 1 {
+		t.Errorf("pusher-cell: table %+v carton %+v", m.Static[0], m.Bodies[2])
+	}
+	for _, a := range m.Actuators {
+		if a.EffortLimit != 40 {
+			t.Errorf("pusher-cell: actuator %+v, want a 40 N·m limit", a)
+		}
+	}
+	for _, b := range m.Bodies[:2] {
+		// Vertical axes 6 cm above the table: gravity loads no joint.
+		if b.Joint.Axis != (r3.Vec{Z: 1}) {
+			t.Errorf("pusher-cell: %s axis %v", b.Name, b.Joint.Axis)
+		}
+	}
+	if z := m.Bodies[0].Joint.Frame.Pos.Z; z != 0.06 {
+		t.Errorf("pusher-cell: shoulder %g m above the table", z)
+	}
+	pd := m.Controller.(*sim.PD)
+	q := make([]float64, 2)
+	for _, c := range []struct{ t, shoulder float64 }{{0, 0}, {0.3, 0}, {0.8, 0.35}, {1.3, 0.7}, {2.5, 0.7}} {
+		pd.Targets.At(c.t, q)
+		if math.Abs(q[0]-c.shoulder) > 1e-12 || q[1] != math.Pi/2 {
+			t.Errorf("pusher-cell: targets at %g s = %v, want shoulder %g, elbow π/2", c.t, q, c.shoulder)
+		}
+	}
+
+	m = get("clock-pendulum")
+	if b := m.Bodies[0]; r3.Norm(b.COM) != 0.8 || b.Mass != 1 || b.Joint.Damping != 0 {
+		t.Errorf("clock-pendulum: %+v", b)
+	}
+	m = get("lamp-chain")
+	for _, b := range m.Bodies {
+		if j := b.Joint; j.Kind != sim.Revolute || j.Damping != 0 || j.Friction != 0 || j.Limited {
+			t.Errorf("lamp-chain: %s joint %+v is not an undamped free hinge", b.Name, j)
+		}
+	}
+	m = get("shelf-arm")
+	if len(m.Bodies) != 3 || len(m.Actuators) != 3 {
+		t.Errorf("shelf-arm: %d links, %d actuators", len(m.Bodies), len(m.Actuators))
+	}
+	pd = m.Controller.(*sim.PD)
+	for i, b := range m.Bodies {
+		// Starts at the target, at rest.
+		if b.Joint.Position != pd.Targets.Values[0][i] || b.Joint.Velocity != 0 {
+			t.Errorf("shelf-arm: %s starts at %g, target %g", b.Name, b.Joint.Position, pd.Targets.Values[0][i])
+		}
+	}
+}
