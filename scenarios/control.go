@@ -141,6 +141,15 @@ func (d *decoder) pd(n *yaml.Node, path string, acts []sim.Actuator, bodies []si
 				d.fail(g.nodes[i], f.sub(g.key)+"."+a.Name, "actuator %q has gains but no column in %s; add one, or leave its gains out", a.Name, f.sub("targets"))
 			}
 		}
+		// A target beyond a joint limit makes the arm press on its stop.
+		if j := bodies[a.Body].Joint; has[i] && j.Limited {
+			for r, row := range c.Targets.Values {
+				if q := row[i]; q < j.Lower || q > j.Upper {
+					d.warn(tn, f.sub("targets"), Warning{Msg: fmt.Sprintf("target %g for actuator %q at %g s is outside the limits [%g, %g] of joint %q", q, a.Name, c.Targets.Times[r], j.Lower, j.Upper, j.Name)})
+					break
+				}
+			}
+		}
 	}
 	return c
 }

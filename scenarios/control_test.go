@@ -645,3 +645,19 @@ func TestRobotBuiltinParameters(t *testing.T) {
 		}
 	}
 }
+
+func TestTargetOutsideLimitsWarns(t *testing.T) {
+	s := load(t, `
+bodies:
+  - {name: a, mass: 1, inertia: {principal: [1, 1, 1]}, joint: {name: hip, kind: revolute, limits: {lower: -1, upper: 1}}}
+actuators: [{name: h, joint: hip}]
+controller:
+  pd:
+    kp: {h: 10}
+    targets: {rows: [[0, 0], [1, 1.5]]}
+`)
+	want := `t.yaml:8:14: controller.pd.targets: target 1.5 for actuator "h" at 1 s is outside the limits [-1, 1] of joint "hip"`
+	if len(s.Warnings) != 1 || s.Warnings[0].String() != want {
+		t.Errorf("warnings %v, want %s", s.Warnings, want)
+	}
+}
