@@ -373,14 +373,17 @@ func quatAt(lg *Log, cols [4]int, i int) (contact.Quat, bool) {
 	return q.Normalize(), true
 }
 
-// rateHalfWidth is how many samples on each side of a window start feed the
-// velocity estimate.
-const rateHalfWidth = 3
+// smoothHalfWidth is how many samples on each side of a window start feed
+// the estimate of the starting state.
+const smoothHalfWidth = 5
 
-// frameAt returns the logged state at row i as a frame. Velocities the log
-// lacks there are estimated from nearby positions by a local quadratic
-// least-squares fit (data preprocessing; the fit's derivatives never use
-// finite differences).
+// frameAt returns the logged state at row i as a frame. Sensor noise in a
+// starting pose would launch the window from a wrong place (a carton
+// logged a fraction of a millimetre inside the table is pushed out of it),
+// so positions and orientations are smoothed by a local quadratic
+// least-squares fit over nearby samples, and velocities the log lacks are
+// the slope of the same fit. This is data preprocessing: the fit's
+// derivatives never use finite differences.
 func (o *Objective) frameAt(bl *boundLog, i int) (sim.Frame, error) {
 	lg := bl.log
 	m := o.model
@@ -401,68 +404,70 @@ func (o *Objective) frameAt(bl *boundLog, i int) (sim.Frame, error) {
 			return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: body.Name + ".qw",
 				Err: errors.New("orientation is not a unit quaternion")}
 		}
-		bf := sim.BodyFrame{Pose: contact.Pose{Pos: r3.Vec{X: val(p[0]), Y: val(p[1]), Z: val(p[2])}, Rot: q}}
-		lin := [3]float64{val(v[0]), val(v[1]), val(v[2])}
-		for c := range lin {
-			if math.IsNaN(lin[c]) {
-				lin[c] = rate(lg.T, lg.Values[p[c]], i)
+		var pos, lin [3]float64
+		for c := range pos {
+			pos[c], lin[c] = smoothAt(lg.T, lg.Values[p[c]], i)
+			if lv := val(v[c]); !math.IsNaN(lv) {
+				lin[c] = lv
 			}
 		}
-		ang := [3]float64{val(v[3]), val(v[4]), val(v[5])}
-		if math.IsNaN(ang[0]) || math.IsNaN(ang[1]) || math.IsNaN(ang[2]) {
-			ang = angularRate(lg, r, i)
+		phi, ang := smoothRotation(lg, r, i)
+		for c := range ang {
+			if av := val(v[3+c]); !math.IsNaN(av) {
+				ang[c] = av
+			}
 		}
-		bf.Linear = r3.Vec{X: lin[0], Y: lin[1], Z: lin[2]}
-		bf.Angular = r3.Vec{X: ang[0], Y: ang[1], Z: ang[2]}
-		for _, x := range append(lin[:], ang[:]...) {
+		for _, x := range append(append(pos[:], lin[:]...), ang[:]...) {
 			if math.IsNaN(x) {
 				return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: body.Name,
-					Err: errors.New("cannot estimate the velocity: too few logged positions near this row")}
+					Err: errors.New("cannot estimate the state: too few logged samples near this row")}
 			}
 		}
-		f.Bodies[b] = bf
+		q = expRot(r3.Vec{X: phi[0], Y: phi[1], Z: phi[2]}).Mul(q).Normalize()
+		f.Bodies[b] = sim.BodyFrame{
+			Pose:    contact.Pose{Pos: r3.Vec{X: pos[0], Y: pos[1], Z: pos[2]}, Rot: q},
+			Linear:  r3.Vec{X: lin[0], Y: lin[1], Z: lin[2]},
+			Angular: r3.Vec{X: ang[0], Y: ang[1], Z: ang[2]},
+		}
 	}
 	for j := range o.joints {
-		q := val(bl.jq[j])
-		qd := val(bl.jqd[j])
-		if math.IsNaN(qd) {
-			qd = rate(lg.T, lg.Values[bl.jq[j]], i)
+		q, qd := smoothAt(lg.T, lg.Values[bl.jq[j]], i)
+		if v := val(bl.jqd[j]); !math.IsNaN(v) {
+			qd = v
 		}
-		if math.IsNaN(qd) {
+		if math.IsNaN(q) || math.IsNaN(qd) {
 			return f, &sim.FileError{File: lg.File, Line: lg.Lines[i], Field: lg.Columns[bl.jq[j]],
-				Err: errors.New("cannot estimate the joint velocity: too few logged positions near this row")}
+				Err: errors.New("cannot estimate the joint state: too few logged positions near this row")}
 		}
 		f.Joints[j] = sim.JointFrame{Q: q, QD: qd}
 	}
 	return f, nil
 }
 
-// rate estimates dv/dt at row i from up to rateHalfWidth finite samples
-// each side, by least squares on a quadratic in t − t_i (a line when only
-// two samples are available).
-func rate(t, v []float64, i int) float64 {
+// smoothAt fits v ≈ a + b·(t − t_i) + c·(t − t_i)² by least squares to
+// the finite samples within smoothHalfWidth rows of row i (a line when
+// fewer than four are available) and returns the value a and slope b.
+func smoothAt(t, v []float64, i int) (value, slope float64) {
 	var ts, vs []float64
-	collect := func(step int) {
-		for j, n := i+step, 0; j >= 0 && j < len(t) && n < rateHalfWidth; j += step {
+	if !math.IsNaN(v[i]) {
+		ts, vs = append(ts, 0), append(vs, v[i])
+	}
+	for _, step := range []int{-1, 1} {
+		for j, n := i+step, 0; j >= 0 && j < len(t) && n < smoothHalfWidth; j += step {
 			if !math.IsNaN(v[j]) {
 				ts, vs = append(ts, t[j]-t[i]), append(vs, v[j])
 				n++
 			}
 		}
 	}
-	if !math.IsNaN(v[i]) {
-		ts, vs = append(ts, 0), append(vs, v[i])
-	}
-	collect(-1)
-	collect(1)
-	return polyRate(ts, vs)
+	return polyFit(ts, vs)
 }
 
-// polyRate fits v ≈ a + b·t (+ c·t²) by least squares and returns b.
-func polyRate(ts, vs []float64) float64 {
+// polyFit fits v ≈ a + b·t (+ c·t²) by least squares and returns a and b.
+func polyFit(ts, vs []float64) (float64, float64) {
 	n := len(ts)
 	if n < 2 {
-		return math.NaN()
+		return math.NaN(), math.NaN()
 	}
 	deg := 2
 	if n < 4 {
@@ -473,7 +478,7 @@ func polyRate(ts, vs []float64) float64 {
 		scale = math.Max(scale, math.Abs(t))
 	}
 	if scale == 0 {
-		return math.NaN()
+		return math.NaN(), math.NaN()
 	}
 	X := mat.NewDense(n, deg+1, nil)
 	for r, t := range ts {
@@ -484,18 +489,21 @@ func polyRate(ts, vs []float64) float64 {
 	}
 	var beta mat.VecDense
 	if err := beta.SolveVec(X, mat.NewVecDense(n, slices.Clone(vs))); err != nil {
-		return math.NaN()
+		return math.NaN(), math.NaN()
 	}
-	return beta.AtVec(1) / scale
+	return beta.AtVec(0), beta.AtVec(1) / scale
 }
 
-// angularRate estimates the world angular velocity at row i from the
-// rotation vectors of nearby orientations relative to row i.
-func angularRate(lg *Log, cols [4]int, i int) [3]float64 {
-	out := [3]float64{math.NaN(), math.NaN(), math.NaN()}
+// smoothRotation fits the world rotation vectors of nearby orientations
+// relative to row i, returning the smoothed rotation vector at row i (a
+// small correction to apply on the left) and the angular velocity.
+func smoothRotation(lg *Log, cols [4]int, i int) (phi0, omega [3]float64) {
+	for c := range phi0 {
+		phi0[c], omega[c] = math.NaN(), math.NaN()
+	}
 	q0, ok := quatAt(lg, cols, i)
 	if !ok {
-		return out
+		return
 	}
 	var ts []float64
 	var phi [3][]float64
@@ -511,16 +519,26 @@ func angularRate(lg *Log, cols [4]int, i int) [3]float64 {
 	}
 	add(i)
 	for _, step := range []int{-1, 1} {
-		for j, n := i+step, 0; j >= 0 && j < len(lg.T) && n < rateHalfWidth; j += step {
+		for j, n := i+step, 0; j >= 0 && j < len(lg.T) && n < smoothHalfWidth; j += step {
 			if add(j) {
 				n++
 			}
 		}
 	}
-	for c := range out {
-		out[c] = polyRate(ts, phi[c])
+	for c := range omega {
+		phi0[c], omega[c] = polyFit(ts, phi[c])
 	}
-	return out
+	return
+}
+
+// expRot returns the unit quaternion of the rotation vector φ.
+func expRot(phi r3.Vec) contact.Quat {
+	th := r3.Norm(phi)
+	if th < 1e-300 {
+		return contact.Quat{W: 1}
+	}
+	s := math.Sin(th/2) / th
+	return contact.Quat{W: math.Cos(th / 2), X: s * phi.X, Y: s * phi.Y, Z: s * phi.Z}
 }
 
 // rotationVector returns φ with exp([φ]×) = R(q), the rotation taking the
