@@ -60,3 +60,32 @@ func (s *Sim) singleDOFJoints() []int {
 	}
 	return js
 }
+
+// Trace steps the simulator steps times from its current state with a
+// forward tangent sweep over params, calling visit after every step with
+// the step count, the generalized state and its tangents (dq[j], dv[j] are
+// ∂q/∂θ_j and ∂v/∂θ_j). The slices are reused between calls. A running cost
+// Σ ℓ(q_k, v_k) and its gradient Σ ∂ℓ/∂x · dx/dθ are built this way.
+func (s *Sim) Trace(params []Param, steps int, visit func(step int, q, v []float64, dq, dv [][]float64) error) error {
+	s.tan = newTangents(s, params)
+	defer func() { s.tan = nil }()
+	for k := 1; k <= steps; k++ {
+		if err := s.Step(); err != nil {
+			return err
+		}
+		if err := visit(k, s.q, s.v, s.tan.dq, s.tan.dv); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// Layout describes where each body's joint coordinates sit in the
+// generalized state: QOffset and VOffset per body, and the sizes.
+func (s *Sim) Layout() (qOff, vOff []int, nq, nv int) {
+	for i := range s.lay.bodies {
+		qOff = append(qOff, s.lay.bodies[i].qOff)
+		vOff = append(vOff, s.lay.bodies[i].vOff)
+	}
+	return qOff, vOff, s.lay.nq, s.lay.nv
+}

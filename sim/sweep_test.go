@@ -220,3 +220,37 @@ func TestSweepSmoothedAcrossStop(t *testing.T) {
 	set := Settings{Solver: contact.SolverSettings{Smoothing: 1e-4}}
 	checkSweep(t, m, set, []string{"friction:pine/tile", "start.vx:crate"}, []float64{0.1, 0.2, 0.3}, 1e-5)
 }
+
+func TestTraceMatchesForwardGradient(t *testing.T) {
+	// A running cost's gradient by Trace equals the final-state gradient
+	// when only the last step's cost is counted.
+	m := pdArm(200, []float64{0.3, -0.4, 0.5})
+	params, _ := ParseParams(m, []string{"kp:motor1", "kd:motor3"})
+	want, err := mustSim(t, m, Settings{}).ForwardGradient(params, 50, halfSquares)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := make([]float64, len(params))
+	err = mustSim(t, m, Settings{}).Trace(params, 50, func(k int, q, v []float64, dq, dv [][]float64) error {
+		if k < 50 {
+			return nil
+		}
+		for j := range params {
+			for i := range q {
+				got[j] += q[i] * dq[j][i]
+			}
+			for i := range v {
+				got[j] += v[i] * dv[j][i]
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j := range got {
+		if got[j] != want[j] {
+			t.Errorf("%s: Trace %.17g, ForwardGradient %.17g", params[j].Name, got[j], want[j])
+		}
+	}
+}
