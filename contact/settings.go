@@ -8,10 +8,12 @@ type SolverSettings struct {
 	// ‖B‖∞ ≤ 1 and max W_ii ≥ ‖B‖∞, and scaled beyond (see Solver.Solve).
 	Tolerance float64
 	// VelocityTolerance bounds the natural-map residual
-	// ‖λ − Π_K(λ − ρ ũ)‖∞/ρ (m/s, scaled like velocities), which catches
-	// velocity errors the products miss when impulses are small (default
-	// 1e-9). Below about 1e-10 it can exceed what double precision resolves
-	// for sliding contacts with small impulses.
+	// ‖λ − Π_K(λ − ρ ũ)‖∞/ρ (m/s), which catches velocity errors the
+	// products miss when impulses are small (default 1e-9). It is relative
+	// to the problem's velocity scale: the residual is divided by
+	// max(1, ‖B‖∞), so the bound is max(1e-9, 1e-9·‖B‖∞) m/s; a fast impact
+	// is not asked for more digits than double precision gives W λ + B.
+	// Polished solutions (see Solver.Solve) usually reach about 1e-14.
 	VelocityTolerance float64
 	// MaxIterations bounds the interior-point iterations (default 60).
 	MaxIterations int

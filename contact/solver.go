@@ -64,6 +64,10 @@ type SolveStats struct {
 	// Regularized counts the factorizations that needed a diagonal shift
 	// because the Newton matrix was numerically singular.
 	Regularized int
+	// Polished reports that the impulses are the polished solution of the
+	// contact modes read off the interior-point iterate (see Solve), not
+	// the iterate itself.
+	Polished bool
 }
 
 // SolveError reports a solve that did not reach its tolerance. Callers add
@@ -109,6 +113,8 @@ type Solver struct {
 	lamT, yT, betaT    []float64 // trial point of a candidate step
 	uT, rpT            []float64
 	dlamK, dyK, dbetaK []float64 // best candidate direction
+	lamP, uP, fP       []float64 // polished point, its velocity and mode residual
+	kind               []int8    // per row: equation of the polishing system
 	rhs                []float64
 	wq0                []float64 // per contact: (Ws q)_0, needed for dβ
 	nt                 []ntScaling
@@ -149,12 +155,16 @@ func (s *Solver) resize(n, nc int) {
 	s.m = grow(s.m, n*n)
 	s.jac = grow(s.jac, n*n)
 	for _, v := range []*[]float64{&s.b, &s.lam, &s.y, &s.dlam, &s.dy, &s.dlamA, &s.dyA, &s.u, &s.rp, &s.rhs,
-		&s.lamT, &s.yT, &s.uT, &s.rpT, &s.dlamK, &s.dyK} {
+		&s.lamT, &s.yT, &s.uT, &s.rpT, &s.dlamK, &s.dyK, &s.lamP, &s.uP, &s.fP} {
 		*v = grow(*v, n)
 	}
 	for _, v := range []*[]float64{&s.mu, &s.beta, &s.dbeta, &s.dbetaA, &s.wq0, &s.betaT, &s.dbetaK} {
 		*v = grow(*v, nc)
 	}
+	if cap(s.kind) < n {
+		s.kind = make([]int8, n)
+	}
+	s.kind = s.kind[:n]
 	if cap(s.piv) < n {
 		s.piv = make([]int, n)
 		s.jpiv = make([]int, n)
@@ -269,6 +279,20 @@ func (s *Solver) load(p *Problem, nlam int) error {
 // retried with a diagonal shift of 1e-13 times the largest diagonal of W
 // (counted in SolveStats.Regularized).
 //
+// # Polishing
+//
+// With κ = 0, once the iterate is within 1e-8 (scaled) of a solution, the
+// mode of each contact (separating, sticking, sliding) and of each
+// unilateral row (active or not) is read off it and the equations of those
+// modes are solved by Newton's method (see solver_polish.go). The polished
+// impulses are returned, with SolveStats.Polished set, only if they meet
+// both tolerances on the exact conditions; otherwise the interior-point
+// iteration continues. This finishes in one or two factorizations what
+// the interior-point method would need several increasingly ill-conditioned
+// iterations for, or could not reach at all. The iterate that the
+// derivatives linearize about is then moved to the central point of
+// relaxation 1e-2·Tolerance·sλ·su next to the polished solution.
+//
 // # Smoothing
 //
 // With set.Smoothing = κ > 0 the solve stops on the relaxed conditions
@@ -304,6 +328,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 		return stats, nil
 	}
 	s.initialPoint()
+	lastPolish := math.Inf(1)
 	for it := 0; ; it++ {
 		natural, velocity, relaxed, gap := s.evaluate()
 		stats.Iterations, stats.Complementarity, stats.Gap = it, natural, gap
@@ -320,6 +345,24 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			copy(lambda, s.lam)
 			s.solved = true
 			return stats, nil
+		}
+		if s.kappa == 0 {
+			// Polish once close, again whenever the iterate has come
+			// another two orders of magnitude closer, and as a last resort.
+			current := math.Max(stats.Residual, velocity*s.tolRatio)
+			if (current <= polishStart && current <= 0.01*lastPolish) || (it >= set.MaxIterations && current < lastPolish) {
+				lastPolish = current
+				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance); ok {
+					copy(lambda, s.lamP)
+					copy(s.u, s.uP)
+					stats.Residual, stats.Complementarity, stats.VelocityResidual = nat, nat, vel
+					stats.Gap = s.exactGap(s.lamP, s.uP)
+					stats.Polished = true
+					s.centralPoint(polishCentral * set.Tolerance * s.scaleL * s.scaleU)
+					s.solved = true
+					return stats, nil
+				}
+			}
 		}
 		if it >= set.MaxIterations || math.IsNaN(stats.Residual) {
 			copy(lambda, s.lam)
@@ -558,10 +601,9 @@ func (s *Solver) evaluate() (natural, velocity, relaxed, gap float64) {
 // the given slices.
 func (s *Solver) evaluateAt(lam, y, beta, uOut, rpOut []float64) (natural, velocity, relaxed, gap float64) {
 	n := s.n
-	copy(uOut, s.b)
-	blas64.Gemv(blas.NoTrans, 1, s.general(s.wd), blas64.Vector{N: n, Data: lam, Inc: 1}, 1, blas64.Vector{N: n, Data: uOut, Inc: 1})
-	sL, sU := s.scaleL, s.scaleU
-	sC := sL * sU
+	s.velocityAt(lam, uOut)
+	natural, velocity = s.naturalAt(lam, uOut)
+	sU, sC := s.scaleU, s.scaleL*s.scaleU
 	k := s.kappa
 	for i := range n {
 		rpOut[i] = y[i] - uOut[i]
@@ -569,8 +611,41 @@ func (s *Solver) evaluateAt(lam, y, beta, uOut, rpOut []float64) (natural, veloc
 	}
 	for c := range s.nc {
 		i := 3 * c
+		pn := lam[i] * y[i]
+		gap += pn
+		relaxed = math.Max(relaxed, math.Abs(pn-k)/sC)
+		if m := s.mu[c]; m > 0 {
+			xi, eta := soc3{m * lam[i], lam[i+1], lam[i+2]}, soc3{beta[c], y[i+1], y[i+2]}
+			p := socJordan(xi, eta)
+			gap += p[0]
+			relaxed = math.Max(relaxed, math.Max(math.Abs(p[0]-k), math.Max(math.Abs(p[1]), math.Abs(p[2])))/sC)
+		}
+	}
+	for i := 3 * s.nc; i < n; i++ {
+		p := lam[i] * y[i]
+		gap += p
+		relaxed = math.Max(relaxed, math.Abs(p-k)/sC)
+	}
+	return natural, velocity, relaxed, gap
+}
+
+// velocityAt writes u = W λ + B into u.
+func (s *Solver) velocityAt(lam, u []float64) {
+	n := s.n
+	copy(u, s.b)
+	blas64.Gemv(blas.NoTrans, 1, s.general(s.wd), blas64.Vector{N: n, Data: lam, Inc: 1}, 1, blas64.Vector{N: n, Data: u, Inc: 1})
+}
+
+// naturalAt returns the natural and velocity residuals (see evaluate) of
+// the impulses lam with velocities u = W λ + B: they measure the exact
+// conditions only, whatever the interior-point variables y and β.
+func (s *Solver) naturalAt(lam, u []float64) (natural, velocity float64) {
+	sL, sU := s.scaleL, s.scaleU
+	sC := sL * sU
+	for c := range s.nc {
+		i := 3 * c
 		ln, lt1, lt2 := lam[i], lam[i+1], lam[i+2]
-		un, ut1, ut2 := uOut[i], uOut[i+1], uOut[i+2]
+		un, ut1, ut2 := u[i], u[i+1], u[i+2]
 		m := s.mu[c]
 		nlt, nut := math.Hypot(lt1, lt2), math.Hypot(ut1, ut2)
 		natural = math.Max(natural, math.Max(0, nlt-m*ln)/sL)
@@ -583,27 +658,15 @@ func (s *Solver) evaluateAt(lam, y, beta, uOut, rpOut []float64) (natural, veloc
 		for r := range 3 {
 			velocity = math.Max(velocity, math.Abs(lam[i+r]-pr[r])/(rho*sU))
 		}
-		pn := ln * y[i]
-		gap += pn
-		relaxed = math.Max(relaxed, math.Abs(pn-k)/sC)
-		if m > 0 {
-			xi, eta := soc3{m * ln, lt1, lt2}, soc3{beta[c], y[i+1], y[i+2]}
-			p := socJordan(xi, eta)
-			gap += p[0]
-			relaxed = math.Max(relaxed, math.Max(math.Abs(p[0]-k), math.Max(math.Abs(p[1]), math.Abs(p[2])))/sC)
-		}
 	}
-	for i := 3 * s.nc; i < n; i++ {
-		l, u := lam[i], uOut[i]
+	for i := 3 * s.nc; i < s.n; i++ {
+		l, ui := lam[i], u[i]
 		natural = math.Max(natural, math.Max(0, -l)/sL)
-		natural = math.Max(natural, math.Max(0, -u)/sU)
-		natural = math.Max(natural, math.Abs(l*u)/sC)
-		velocity = math.Max(velocity, math.Abs(math.Min(l/s.rowRho(i), u))/sU)
-		p := l * y[i]
-		gap += p
-		relaxed = math.Max(relaxed, math.Abs(p-k)/sC)
+		natural = math.Max(natural, math.Max(0, -ui)/sU)
+		natural = math.Max(natural, math.Abs(l*ui)/sC)
+		velocity = math.Max(velocity, math.Abs(math.Min(l/s.rowRho(i), ui))/sU)
 	}
-	return natural, velocity, relaxed, gap
+	return natural, velocity
 }
 
 // rowRho returns 1/W_ii, or 1/max W_ii for a zero diagonal.

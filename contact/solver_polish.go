@@ -1,0 +1,321 @@
+package contact
+
+import (
+	"math"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
+)
+
+// Polishing: once the interior-point iterate is close to a solution, the
+// mode of every contact can be read off it, and the exact conditions of
+// those modes are a square system of equations in λ alone,
+//
+//	separating contact, inactive unilateral row:  λ = 0,
+//	frictionless contact that pushes:             un = 0, λt = 0,
+//	sticking contact, active unilateral row:      u = 0,
+//	sliding contact:                              un = 0, λt + μ λn ut/‖ut‖ = 0,
+//
+// (u = W λ + B), which Newton's method solves to full precision in a few
+// steps where the interior-point iteration would need the complementarity
+// gap to shrink by several more orders of magnitude (its last digits are
+// the hardest: the barrier matrix becomes badly conditioned as pairs reach
+// the boundary of their cones). A polished point is accepted only if it
+// satisfies the exact conditions (natural and velocity residuals) to the
+// tolerances; a wrong guess of a mode leaves a sign or cone violation, and
+// the interior-point iteration then simply continues.
+//
+// With redundant contacts (singular W) the system is singular: its
+// solutions form an affine set. The Newton steps are regularized (see
+// polish) so that they leave the components of λ that W does not see as
+// the interior-point iterate had them: the distribution of impulses among
+// redundant contacts is the interior-point one.
+
+// Row kinds of the polishing system.
+const (
+	rowZero     int8 = iota // λ_i = 0
+	rowVelocity             // u_i = 0
+	rowSlide                // tangent row of a sliding contact
+)
+
+// polishStart is the scaled stopping residual (with the velocity residual
+// brought to the same footing, see trialResidual) below which polishing is
+// tried: close enough for the modes to be read off reliably.
+const polishStart = 1e-8
+
+// polishCentral is the relaxation τ of the central point placed next to
+// a polished solution for the derivatives, relative to the product scale
+// Tolerance·sλ·su: a hundredth of what an unpolished converged iterate may
+// have.
+const polishCentral = 1e-2
+
+// polishSteps bounds the Newton steps of one polishing attempt.
+const polishSteps = 6
+
+// polishEps is the relative diagonal shift ε/max W_ii of the polishing
+// Newton matrix. Each step leaves a share of about 2ε/σ of the error along
+// an eigenvalue σ of the mode's Jacobian, so ε only needs to be small
+// against the smallest nonzero σ; it bounds the growth of rounding errors
+// along nearly singular directions by 1/(4ε).
+const polishEps = 1e-9
+
+// classify sets the row kinds of the polishing system from the current
+// iterate. A pair is read as active where λ exceeds ρ y (ρ = 1/W_ii, the
+// impulse that the row's own velocity y would take back), a contact as
+// sliding where ρ β, the impulse scale of its slip, exceeds the distance
+// μλn − ‖λt‖ of its friction from the cone's boundary. It reports whether
+// any contact slides.
+func (s *Solver) classify() (sliding bool) {
+	for c := range s.nc {
+		i := 3 * c
+		k := &s.kind
+		ln := s.lam[i]
+		switch m := s.mu[c]; {
+		case ln <= s.rowRho(i)*s.y[i]:
+			(*k)[i], (*k)[i+1], (*k)[i+2] = rowZero, rowZero, rowZero
+		case m == 0:
+			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowZero, rowZero
+		case s.rowRho(i+1)*s.beta[c] > m*ln-math.Hypot(s.lam[i+1], s.lam[i+2]):
+			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowSlide, rowSlide
+			sliding = true
+		default:
+			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowVelocity, rowVelocity
+		}
+	}
+	for i := 3 * s.nc; i < s.n; i++ {
+		if s.lam[i] > s.rowRho(i)*s.y[i] {
+			s.kind[i] = rowVelocity
+		} else {
+			s.kind[i] = rowZero
+		}
+	}
+	return sliding
+}
+
+// polishResidual computes u = W λ + B at s.lamP into s.uP and the residual
+// F of the mode equations into s.fP, every row in velocity units (impulse
+// rows times 1/ρ). It returns max|F|/su, or NaN when a sliding contact has
+// no slip direction.
+func (s *Solver) polishResidual() float64 {
+	lam, u, f := s.lamP, s.uP, s.fP
+	s.velocityAt(lam, u)
+	worst := 0.0
+	for i := range s.n {
+		switch s.kind[i] {
+		case rowZero:
+			f[i] = lam[i] / s.rowRho(i)
+		case rowVelocity:
+			f[i] = u[i]
+		case rowSlide:
+			if (i % 3) != 1 {
+				continue // filled with the first tangent row
+			}
+			c := i / 3
+			nut := math.Hypot(u[i], u[i+1])
+			if nut == 0 {
+				return math.NaN()
+			}
+			ml := s.mu[c] * lam[i-1] / nut
+			f[i] = (lam[i] + ml*u[i]) / s.rowRho(i)
+			f[i+1] = (lam[i+1] + ml*u[i+1]) / s.rowRho(i+1)
+		}
+	}
+	for i := range s.n {
+		worst = math.Max(worst, math.Abs(f[i]))
+	}
+	return worst / s.scaleU
+}
+
+// polishFactor assembles J + εI, J the Jacobian of the mode equations at
+// s.lamP (rows as in polishResidual), into s.jac and factors it.
+func (s *Solver) polishFactor() bool {
+	n := s.n
+	a := s.jac
+	lam, u := s.lamP, s.uP
+	eps := polishEps / s.rho
+	for i := range n {
+		row := a[i*n : (i+1)*n]
+		switch s.kind[i] {
+		case rowZero:
+			clear(row)
+			row[i] = 1 / s.rowRho(i)
+		case rowVelocity:
+			copy(row, s.wd[i*n:(i+1)*n])
+		case rowSlide:
+			// g_r = λt_r + μ λn d_r with d = ut/‖ut‖:
+			// ∂g/∂λ = e_t + μ d e_n + (μ λn/‖ut‖)(I − d dᵀ) W_t.
+			c, r := i/3, i%3-1
+			j := 3 * c
+			nut := math.Hypot(u[j+1], u[j+2])
+			d := [2]float64{u[j+1] / nut, u[j+2] / nut}
+			ml := s.mu[c] * lam[j] / nut
+			p0, p1 := -ml*d[r]*d[0], -ml*d[r]*d[1]
+			if r == 0 {
+				p0 += ml
+			} else {
+				p1 += ml
+			}
+			w1, w2 := s.wd[(j+1)*n:(j+2)*n], s.wd[(j+2)*n:(j+3)*n]
+			om := 1 / s.rowRho(i)
+			for k := range n {
+				row[k] = om * (p0*w1[k] + p1*w2[k])
+			}
+			row[j] += om * s.mu[c] * d[r]
+			row[i] += om
+		}
+		row[i] += eps
+	}
+	return lapack64.Getrf(s.general(a), s.jpiv)
+}
+
+// polish tries to finish the solve from the current iterate (see the
+// comment at the top of this file). On success the polished impulses are
+// in s.lamP, their velocities in s.uP, and it returns their natural and
+// velocity residuals.
+func (s *Solver) polish(tol, vtol float64) (ok bool, natural, velocity float64) {
+	n := s.n
+	sliding := s.classify()
+	copy(s.lamP, s.lam)
+	for i := range n {
+		if s.kind[i] == rowZero {
+			s.lamP[i] = 0
+		}
+	}
+	prev := math.Inf(1)
+	factored := false
+	for step := range polishSteps {
+		f := s.polishResidual()
+		if !(f < prev) && step > 0 {
+			// No longer converging (rounding reached, a wrong mode, or a
+			// sliding system out of Newton's reach): undo the last step.
+			for i := range n {
+				if s.kind[i] != rowZero {
+					s.lamP[i] += s.rhs[i]
+				}
+			}
+			break
+		}
+		if !(f > 1e-15) {
+			break // exact to rounding, or NaN (no slip direction)
+		}
+		prev = f
+		if !factored || sliding {
+			if !s.polishFactor() {
+				return false, 0, 0
+			}
+			factored = true
+		}
+		// Filtered step d = (J + εI)⁻¹ J (J + εI)⁻¹ F, computed as
+		// (J + εI)⁻¹ (F − ε z) with z = (J + εI)⁻¹ F: along an eigenvalue
+		// σ of J it is σ/(σ + ε)² times F, Newton's F/σ for σ ≫ ε and
+		// zero for σ = 0, so an inconsistent part of F (redundant
+		// contacts whose offsets B disagree by rounding) is left as a
+		// residual instead of being amplified by 1/ε.
+		copy(s.rhs, s.fP)
+		rhs := blas64.General{Rows: n, Cols: 1, Stride: 1, Data: s.rhs}
+		lapack64.Getrs(blas.NoTrans, s.general(s.jac), rhs, s.jpiv)
+		eps := polishEps / s.rho
+		for i := range n {
+			s.rhs[i] = s.fP[i] - eps*s.rhs[i]
+		}
+		lapack64.Getrs(blas.NoTrans, s.general(s.jac), rhs, s.jpiv)
+		for i := range n {
+			if s.kind[i] == rowZero {
+				continue // stays exactly zero
+			}
+			s.lamP[i] -= s.rhs[i]
+		}
+	}
+	s.velocityAt(s.lamP, s.uP)
+	natural, velocity = s.naturalAt(s.lamP, s.uP)
+	ok = natural <= tol && velocity <= vtol
+	return ok, natural, velocity
+}
+
+// exactGap returns Σ λᵀũ over the contacts plus Σ λ u over the unilateral
+// rows at (lam, u): the complementarity gap of the exact conditions.
+func (s *Solver) exactGap(lam, u []float64) float64 {
+	gap := 0.0
+	for c := range s.nc {
+		i := 3 * c
+		gap += lam[i]*(u[i]+s.mu[c]*math.Hypot(u[i+1], u[i+2])) + lam[i+1]*u[i+1] + lam[i+2]*u[i+2]
+	}
+	for i := 3 * s.nc; i < s.n; i++ {
+		gap += lam[i] * u[i]
+	}
+	return gap
+}
+
+// centralPoint replaces the interior-point iterate (λ, y, β) by a point of
+// the central path of target tau next to the polished solution (s.lamP,
+// s.uP): every pair keeps the polished value of its larger member and gets
+// tau divided by it for the smaller one (λ y = tau; for the cone pairs the
+// same per eigenvalue in a shared Jordan frame, so ξ∘η = tau e exactly).
+// The derivatives, which linearize the relaxed conditions at the iterate,
+// then see the polished modes with complementarity relaxed to tau only, as
+// if the interior-point iteration had converged that far.
+func (s *Solver) centralPoint(tau float64) {
+	lp, up := s.lamP, s.uP
+	for c := range s.nc {
+		i := 3 * c
+		m := s.mu[c]
+		if m == 0 {
+			s.lam[i], s.y[i] = centralPair(lp[i], up[i], s.rowRho(i), tau)
+			s.lam[i+1], s.lam[i+2] = 0, 0
+			s.y[i+1], s.y[i+2] = up[i+1], up[i+2]
+			s.beta[c] = math.Hypot(up[i+1], up[i+2])
+			continue
+		}
+		rho := s.rowRho(i)
+		nlt, nut := math.Hypot(lp[i+1], lp[i+2]), math.Hypot(up[i+1], up[i+2])
+		// β of the exact solution: ‖ut‖ where the contact pushes; where it
+		// separates any bound on ‖ut‖ will do, and un keeps the cone pair
+		// as far from degenerate as the normal pair.
+		beta := nut
+		if s.kind[i] == rowZero {
+			beta += math.Max(up[i], 0)
+		}
+		// The shared Jordan frame: the friction direction, or against the
+		// slip where there is no friction.
+		v := [2]float64{1, 0}
+		switch {
+		case nlt > rho*nut:
+			v = [2]float64{lp[i+1] / nlt, lp[i+2] / nlt}
+		case nut > 0:
+			v = [2]float64{-up[i+1] / nut, -up[i+2] / nut}
+		}
+		xi0, xi1 := m*lp[i], lp[i+1]*v[0]+lp[i+2]*v[1]
+		eta1 := up[i+1]*v[0] + up[i+2]*v[1]
+		var a, b [2]float64
+		for k, sg := range [2]float64{1, -1} {
+			a[k], b[k] = centralPair(math.Max(xi0+sg*xi1, 0), math.Max(beta+sg*eta1, 0), rho, tau)
+		}
+		xi0, xi1 = (a[0]+a[1])/2, (a[0]-a[1])/2
+		eta0, eta1 := (b[0]+b[1])/2, (b[0]-b[1])/2
+		s.lam[i], s.lam[i+1], s.lam[i+2] = xi0/m, xi1*v[0], xi1*v[1]
+		s.beta[c], s.y[i+1], s.y[i+2] = eta0, eta1*v[0], eta1*v[1]
+		if s.kind[i] == rowZero {
+			s.y[i] = math.Max(up[i], tau/s.lam[i])
+		} else {
+			s.y[i] = tau / s.lam[i]
+		}
+	}
+	for i := 3 * s.nc; i < s.n; i++ {
+		s.lam[i], s.y[i] = centralPair(lp[i], up[i], s.rowRho(i), tau)
+	}
+}
+
+// centralPair returns the pair (l, y) with l y = tau next to an exact
+// complementary pair (l0, y0): the member that is larger, compared in
+// impulse units (ρ y0 against l0), is kept. A pair with both members zero
+// (weakly active) becomes (√(τρ), √(τ/ρ)).
+func centralPair(l0, y0, rho, tau float64) (l, y float64) {
+	switch {
+	case l0 <= 0 && y0 <= 0:
+		return math.Sqrt(tau * rho), math.Sqrt(tau / rho)
+	case l0 >= rho*y0:
+		return l0, tau / l0
+	}
+	return tau / y0, y0
+}
