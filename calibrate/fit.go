@@ -84,22 +84,22 @@ func ReadCheckpoint(data []byte) (*Checkpoint, error) {
 
 // ParamResult is the outcome for one parameter.
 type ParamResult struct {
-	Name    string  `json:"name"`
-	Initial float64 `json:"initial"`
-	Value   float64 `json:"value"`
-	StdErr  float64 `json:"standard_error"`
-	Lower95 float64 `json:"ci95_lower"`
-	Upper95 float64 `json:"ci95_upper"`
+	Name    string
+	Initial float64
+	Value   float64
+	StdErr  float64
+	Lower95 float64
+	Upper95 float64
 	// Lower and Upper are the bounds; AtBound says the value sits on one.
-	Lower   float64 `json:"bound_lower"`
-	Upper   float64 `json:"bound_upper"`
-	AtBound bool    `json:"at_bound"`
+	Lower   float64
+	Upper   float64
+	AtBound bool
 	// RelErr is the relative standard error from the logs alone.
-	RelErr float64 `json:"relative_error_data"`
+	RelErr float64
 	// Identifiability and the sentence that explains it.
-	Class   Identifiability `json:"-"`
-	Verdict string          `json:"identifiability"`
-	Note    string          `json:"note"`
+	Class   Identifiability
+	Verdict string
+	Note    string
 }
 
 // StageResult summarizes one smoothing stage.
@@ -110,39 +110,40 @@ type StageResult struct {
 	Loss       float64 `json:"loss"`
 }
 
-// Calibration is the outcome of a fit.
+// Calibration is the outcome of a fit. Calibration.JSON renders it for
+// scripts.
 type Calibration struct {
-	Params []ParamResult `json:"parameters"`
+	Params []ParamResult
 	// Corr is the correlation matrix of the estimates.
-	Corr [][]float64 `json:"correlations"`
+	Corr [][]float64
 	// SingularValues of the column-scaled data Jacobian and Condition
 	// their ratio: large means some combination is poorly determined.
-	SingularValues []float64 `json:"singular_values"`
-	Condition      float64   `json:"condition"`
+	SingularValues []float64
+	Condition      float64
 	// Sigma2 is the residual variance of the whitened data: near 1 when
 	// the noise model fits; DOF its degrees of freedom.
-	Sigma2 float64 `json:"residual_variance"`
-	DOF    int     `json:"degrees_of_freedom"`
+	Sigma2 float64
+	DOF    int
 	// Converged reports whether the last stage met a convergence test.
-	Converged bool          `json:"converged"`
-	Stages    []StageResult `json:"stages"`
-	History   []TracePoint  `json:"history"`
+	Converged bool
+	Stages    []StageResult
+	History   []TracePoint
 	// Train and HeldOut errors at the initial and the fitted values.
-	TrainBefore   ErrorSummary  `json:"train_before"`
-	TrainAfter    ErrorSummary  `json:"train_after"`
-	HeldOutBefore *ErrorSummary `json:"held_out_before,omitempty"`
-	HeldOutAfter  *ErrorSummary `json:"held_out_after,omitempty"`
-	Windows       int           `json:"windows"`
-	Rows          int           `json:"residual_rows"`
-	Evaluations   int           `json:"evaluations"`
-	Elapsed       float64       `json:"elapsed_s"`
+	TrainBefore   ErrorSummary
+	TrainAfter    ErrorSummary
+	HeldOutBefore *ErrorSummary
+	HeldOutAfter  *ErrorSummary
+	Windows       int
+	Rows          int
+	Evaluations   int
+	Elapsed       float64
 	// Initial and Fitted are the parameter vectors.
-	Initial []float64 `json:"-"`
-	Fitted  []float64 `json:"-"`
+	Initial []float64
+	Fitted  []float64
 	// Residuals at the fitted values (whitened, data rows first).
-	Residuals []float64 `json:"-"`
+	Residuals []float64
 	// Train and HeldOut are the objectives, for plots.
-	Train, HeldOut *Objective `json:"-"`
+	Train, HeldOut *Objective
 }
 
 // Fit calibrates the free parameters to the training logs: it runs one

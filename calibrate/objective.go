@@ -744,15 +744,15 @@ func component(v r3.Vec, i int) float64 {
 type ErrorSummary struct {
 	// Loss is ½‖r‖² over the data rows (whitened), RMS the root mean
 	// square whitened residual.
-	Loss float64 `json:"loss"`
-	RMS  float64 `json:"rms_whitened"`
+	Loss float64
+	RMS  float64
 	// Position (m), Rotation (rad) and Joint (rad or m) are root mean
-	// square errors in natural units; NaN (null in JSON) when no channel
+	// square errors in natural units; NaN when no channel
 	// of that kind is logged.
-	Position float64 `json:"rms_position_m"`
-	Rotation float64 `json:"rms_rotation_rad"`
-	Joint    float64 `json:"rms_joint"`
-	Rows     int     `json:"rows"`
+	Position float64
+	Rotation float64
+	Joint    float64
+	Rows     int
 }
 
 // Errors evaluates the logs at θ and summarizes the misfit.
