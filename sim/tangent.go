@@ -100,9 +100,6 @@ func (dm *modelTangent) seed(s *Sim, p *Param) {
 	}
 }
 
-// inertiaTangent is the derivative of a spatial inertia's parameters.
-type inertiaTangent = inertia
-
 // kinTangent holds the tangents of the kinematic quantities.
 type kinTangent struct {
 	dp, dphi []r3.Vec  // body origin displacement and rotation, world
