@@ -1,7 +1,9 @@
 package sim
 
 import (
+	"errors"
 	"math"
+	"strings"
 	"testing"
 
 	"stickslip/contact"
@@ -331,5 +333,23 @@ func TestPassiveScenesDoNotGainEnergy(t *testing.T) {
 				t.Errorf("energy rose %.3g J above its start", maxGain)
 			}
 		})
+	}
+}
+
+func TestSolverFailureIsAStepError(t *testing.T) {
+	// DESIGN.md, Bad input: no convergence is an error naming the step,
+	// the contacts and the residual, never a silent state.
+	m := stackScene(3)
+	s := mustSim(t, m, Settings{Solver: contact.SolverSettings{MaxIterations: 1}})
+	err := s.Step()
+	var se *StepError
+	if !errors.As(err, &se) {
+		t.Fatalf("got %v, want a *StepError", err)
+	}
+	msg := err.Error()
+	for _, want := range []string{"step 1", "t = 0.001 s", "contacts among bodies", "boxA", "residual"} {
+		if !strings.Contains(msg, want) {
+			t.Errorf("message %q lacks %q", msg, want)
+		}
 	}
 }
