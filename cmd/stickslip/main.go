@@ -14,6 +14,7 @@ import (
 	"io"
 	"os"
 	"sort"
+	"strings"
 )
 
 // command is one subcommand.
@@ -109,9 +110,10 @@ func newFlags(e *env, name, synopsis string) *flag.FlagSet {
 	return fs
 }
 
-// parseFlags parses args, marking failures as bad input.
+// parseFlags parses args, marking failures as bad input. Flags may come
+// before or after the positional arguments.
 func parseFlags(fs *flag.FlagSet, args []string) error {
-	if err := fs.Parse(args); err != nil {
+	if err := fs.Parse(flagsFirst(fs, args)); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return err
 		}
@@ -122,4 +124,38 @@ func parseFlags(fs *flag.FlagSet, args []string) error {
 
 func main() {
 	os.Exit(run(&env{stdout: os.Stdout, stderr: os.Stderr}, os.Args[1:]))
+}
+
+// flagsFirst reorders args so that flags precede positional arguments, as
+// the flag package expects, keeping each flag with its value.
+func flagsFirst(fs *flag.FlagSet, args []string) []string {
+	var flags, pos []string
+	for i := 0; i < len(args); i++ {
+		a := args[i]
+		if a == "--" {
+			pos = append(pos, args[i+1:]...)
+			break
+		}
+		if len(a) < 2 || a[0] != '-' {
+			pos = append(pos, a)
+			continue
+		}
+		flags = append(flags, a)
+		name := strings.TrimLeft(a, "-")
+		if strings.Contains(name, "=") {
+			continue
+		}
+		f := fs.Lookup(name)
+		if f == nil {
+			continue // the parse reports it
+		}
+		if b, ok := f.Value.(interface{ IsBoolFlag() bool }); ok && b.IsBoolFlag() {
+			continue
+		}
+		if i+1 < len(args) {
+			i++
+			flags = append(flags, args[i])
+		}
+	}
+	return append(append(flags, "--"), pos...)
 }

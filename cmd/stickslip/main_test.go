@@ -79,3 +79,14 @@ func TestScenesCommand(t *testing.T) {
 		t.Errorf("scenes crate-slide: exit %d, output %q", code, out)
 	}
 }
+
+func TestFlagsAfterArguments(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "slide")
+	code, _, errs := runCmd(t, "simulate", "crate-slide", "--out", dir, "--quiet", "--duration", "0.05")
+	if code != 0 {
+		t.Fatalf("flags after the scene: exit %d: %s", code, errs)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "run.json")); err != nil {
+		t.Error("run not written where --out said")
+	}
+}
