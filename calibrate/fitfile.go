@@ -184,14 +184,17 @@ func (p *ParamSpec) UnmarshalYAML(n *yaml.Node) error {
 		Name    string    `yaml:"name"`
 		Initial *float64  `yaml:"initial"`
 		Bounds  []float64 `yaml:"bounds"`
-		Prior   *yaml.Node
+		Prior   yaml.Node `yaml:"prior"`
 	}
 	if err := n.Decode(&v); err != nil {
 		return err
 	}
 	p.Name, p.Initial, p.Bounds = v.Name, v.Initial, v.Bounds
-	if v.Prior != nil {
-		if err := checkKeys(v.Prior, "mean", "sd"); err != nil {
+	if v.Prior.Kind != 0 {
+		if v.Prior.Kind != yaml.MappingNode {
+			return fmt.Errorf("line %d: a prior is {mean: NUMBER, sd: NUMBER}", v.Prior.Line)
+		}
+		if err := checkKeys(&v.Prior, "mean", "sd"); err != nil {
 			return err
 		}
 		p.Prior = new(PriorSpec)

@@ -287,7 +287,7 @@ func (c *Calibration) lossPlot() *plot.Plot {
 	p.X.Label.Text = "step (all smoothing stages)"
 	p.Y.Label.Text = "½‖r‖² (whitened)"
 	p.Y.Scale = plot.LogScale{}
-	p.Y.Tick.Marker = plot.LogTicks{Prec: -1}
+	p.Y.Tick.Marker = plot.LogTicks{Prec: 1}
 	var pts plotter.XYs
 	for i, h := range c.History {
 		pts = append(pts, plotter.XY{X: float64(i), Y: math.Max(h.Loss, 1e-300)})
@@ -365,8 +365,13 @@ func (o *Objective) channels(li int) []plotChannel {
 		out = append(out, plotChannel{name: lg.Columns[col], kind: kindJoint, idx: j, col: col, span: span(col), sigma: sigma[col]})
 	}
 	sort.SliceStable(out, func(i, j int) bool { return out[i].span/out[i].sigma > out[j].span/out[j].sigma })
-	if len(out) > 3 {
-		out = out[:3]
+	// Channels that stay within a few σ show nothing of the fit.
+	keep := 1
+	for keep < len(out) && keep < 3 && out[keep].span > 3*out[keep].sigma {
+		keep++
+	}
+	if len(out) > keep {
+		out = out[:keep]
 	}
 	return out
 }
@@ -388,6 +393,7 @@ func (o *Objective) trajectoryPlot(li int, before, after []Trace) (*plot.Plot, e
 	p.X.Label.Text = "t (s)"
 	p.Y.Label.Text = "value (m or rad)"
 	p.Legend.Top = true
+	p.Legend.Left = true
 	for ci, ch := range chans {
 		col := palette[ci%len(palette)]
 		var logPts plotter.XYs
