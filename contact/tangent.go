@@ -108,7 +108,7 @@ func tangentOrdered(a *Shape, fa *tframe, b *Shape, fb *tframe, pt Point) (tvec,
 			if pt.Feature&featBoxEdge != 0 {
 				return exact(tBoxBoxEdge(a, fa, b, fb, pt.Feature))
 			}
-			return exact(tBoxBoxFace(a, fa, b, fb, pt.Feature))
+			return exact(tBoxBoxFace(a, fa, b, fb, pt.Feature, pt.Pos, pt.Gap))
 		case Cylinder:
 			return tConvexPair(a, fa, b, fb, pt)
 		}

@@ -1,6 +1,10 @@
 package contact
 
-import "gonum.org/v1/gonum/spatial/r3"
+import (
+	"math"
+
+	"gonum.org/v1/gonum/spatial/r3"
+)
 
 // faceSign returns the outward sign of box face id f (2·axis, +1 for the
 // positive side).
@@ -17,7 +21,11 @@ func faceSign(f uint32) float64 {
 // of an incident edge with a reference side plane; or the point where two
 // reference side planes (a line along the reference normal through a
 // corner of the reference face) pierce the incident face's plane.
-func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32) (tvec, tvec, tnum) {
+//
+// pos and gap are the point's Pos and Gap from Collide: they place the
+// point on an incident edge that lies in a reference side plane, where
+// the crossing is not unique.
+func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32, pos r3.Vec, gap float64) (tvec, tvec, tnum) {
 	rf, inf := fa, fb
 	hr, hi := a.HalfExtents, b.HalfExtents
 	if feat&featRefIsB != 0 {
@@ -40,8 +48,24 @@ func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32) (tvec,
 		p1 := incidentCorner(inf, hi, incFace, (va+1)%4)
 		g0 := sidePlaneDist(rf, hr, k, vb, p0)
 		g1 := sidePlaneDist(rf, hr, k, vb, p1)
-		lam := nDiv(g0, nSub(g0, g1))
-		p = tAdd(p0, tScale(lam, tSub(p1, p0)))
+		e := tSub(p1, p0)
+		var lam tnum
+		if den := nSub(g0, g1); !(math.Abs(den.v) <= edgeInPlaneTol*r3.Norm(e.v)) {
+			lam = nDiv(g0, den)
+		} else {
+			// The edge lies in the side plane (two boxes side by side on
+			// a floor: their top and bottom faces coplanar), so every point
+			// of it is a crossing and Collide's pick is set by rounding.
+			// Keep the point Collide gave as a point of the incident
+			// edge. That is the limit of the exact derivative for every
+			// motion that keeps the edge in the plane (for those g0' =
+			// g1' = 0, so λ' = (g0 g1' − g1 g0')/(g0 − g1)² = 0); a
+			// motion that tilts the edge out of the plane has no finite
+			// derivative and ends the mode.
+			x := r3.Add(pos, r3.Scale(gap/2, nRef.v))
+			lam = nconst(r3.Dot(r3.Sub(x, p0.v), e.v) / r3.Dot(e.v, e.v))
+		}
+		p = tAdd(p0, tScale(lam, e))
 	default:
 		// Corner of the reference face on side planes va and vb.
 		var x r3.Vec
@@ -58,14 +82,20 @@ func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32) (tvec,
 		mu := nDiv(tDot(nInc, tSub(ci, corner)), tDot(nInc, nRef))
 		p = tAdd(corner, tScale(mu, nRef))
 	}
-	gap := tDot(nRef, tSub(p, cr))
-	pos := tSub(p, tScale(nScale(0.5, gap), nRef))
+	g := tDot(nRef, tSub(p, cr))
 	n := nRef
 	if feat&featRefIsB != 0 {
 		n = tNeg(nRef)
 	}
-	return pos, n, gap
+	return tSub(p, tScale(nScale(0.5, g), nRef)), n, g
 }
+
+// edgeInPlaneTol is the sine of the angle between an incident edge and a
+// reference side plane below which the edge counts as lying in the plane.
+// At 1e-9 the exact derivative of the crossing would already be about 1e9
+// times the twist, and the distances that set it are within a few hundred
+// roundoffs of zero for boxes of unit size.
+const edgeInPlaneTol = 1e-9
 
 // sideSign is the sign of reference side plane s along its axis: even
 // planes bound the positive side.

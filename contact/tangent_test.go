@@ -105,6 +105,11 @@ func nearContact(rng *rand.Rand, a, b *Shape, target float64) (Pose, Pose) {
 // the tolerance of its Newton polish, which the difference quotient would
 // amplify past the tolerance.
 func fdPoint(a *Shape, pa Pose, b *Shape, pb Pose, pt Point, ta, tb Twist, margin float64, polish bool) (dPos, dNormal r3.Vec, dGap float64, ok bool) {
+	return fdPointWith(fivePoint, a, pa, b, pb, pt, ta, tb, margin, polish)
+}
+
+// fdPointWith is fdPoint with the finite-difference formula given.
+func fdPointWith(formula fd.Formula, a *Shape, pa Pose, b *Shape, pb Pose, pt Point, ta, tb Twist, margin float64, polish bool) (dPos, dNormal r3.Vec, dGap float64, ok bool) {
 	buf := make([]Point, 0, 16)
 	ok = true
 	at := func(e float64) Point {
@@ -138,7 +143,7 @@ func fdPoint(a *Shape, pa Pose, b *Shape, pb Pose, pt Point, ta, tb Twist, margi
 		}
 		return best
 	}
-	s := &fd.Settings{Formula: fivePoint}
+	s := &fd.Settings{Formula: formula}
 	comp := func(f func(Point) float64) float64 {
 		return fd.Derivative(func(e float64) float64 { return f(at(e)) }, 0, s)
 	}
