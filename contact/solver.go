@@ -64,6 +64,9 @@ type SolveStats struct {
 	// Regularized counts the factorizations that needed a diagonal shift
 	// because the Newton matrix was numerically singular.
 	Regularized int
+	// Restarts counts the restarts of the interior-point iteration from a
+	// new starting point after it stalled.
+	Restarts int
 	// Polished reports that the impulses are the polished solution of the
 	// contact modes read off the interior-point iterate (see Solve), not
 	// the iterate itself.
@@ -114,7 +117,8 @@ type Solver struct {
 	uT, rpT            []float64
 	dlamK, dyK, dbetaK []float64 // best candidate direction
 	lamP, uP, fP       []float64 // polished point, its velocity and mode residual
-	kind               []int8    // per row: equation of the polishing system
+	kind, kindB        []int8    // per row: equation of the polishing system, and a saved copy
+	lamB, yB, betaB    []float64 // best iterate so far
 	rhs                []float64
 	wq0                []float64 // per contact: (Ws q)_0, needed for dβ
 	nt                 []ntScaling
@@ -155,16 +159,17 @@ func (s *Solver) resize(n, nc int) {
 	s.m = grow(s.m, n*n)
 	s.jac = grow(s.jac, n*n)
 	for _, v := range []*[]float64{&s.b, &s.lam, &s.y, &s.dlam, &s.dy, &s.dlamA, &s.dyA, &s.u, &s.rp, &s.rhs,
-		&s.lamT, &s.yT, &s.uT, &s.rpT, &s.dlamK, &s.dyK, &s.lamP, &s.uP, &s.fP} {
+		&s.lamT, &s.yT, &s.uT, &s.rpT, &s.dlamK, &s.dyK, &s.lamP, &s.uP, &s.fP, &s.lamB, &s.yB} {
 		*v = grow(*v, n)
 	}
-	for _, v := range []*[]float64{&s.mu, &s.beta, &s.dbeta, &s.dbetaA, &s.wq0, &s.betaT, &s.dbetaK} {
+	for _, v := range []*[]float64{&s.mu, &s.beta, &s.dbeta, &s.dbetaA, &s.wq0, &s.betaT, &s.dbetaK, &s.betaB} {
 		*v = grow(*v, nc)
 	}
 	if cap(s.kind) < n {
 		s.kind = make([]int8, n)
+		s.kindB = make([]int8, n)
 	}
-	s.kind = s.kind[:n]
+	s.kind, s.kindB = s.kind[:n], s.kindB[:n]
 	if cap(s.piv) < n {
 		s.piv = make([]int, n)
 		s.jpiv = make([]int, n)
@@ -309,8 +314,20 @@ func (s *Solver) load(p *Problem, nlam int) error {
 // absolute. With κ = 0 the solve stops when SolveStats.Residual ≤
 // set.Tolerance and SolveStats.VelocityResidual ≤ set.VelocityTolerance.
 //
+// # Fallbacks
+//
+// The problem is not monotone, and the central path from a given starting
+// point can turn back before reaching a solution. A solve whose stopping
+// residual has not halved for 6 iterations (or whose iterate became NaN) is
+// stalled: the modes read off it are polished (with active-set
+// corrections), and failing that the iteration restarts from a differently
+// balanced starting point (impulses or velocities scaled by 10 or 1/10; up
+// to 4 restarts, each while at least 10 iterations remain). When the
+// iteration limit is reached, the best iterate seen is polished, then
+// every change of a single contact's mode is tried.
+//
 // A solve that does not reach set.Tolerance within set.MaxIterations returns
-// a *SolveError; lambda then holds the last iterate.
+// a *SolveError; lambda then holds the best iterate.
 func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveStats, error) {
 	set = set.WithDefaults()
 	s.solved, s.jacReady = false, false
@@ -327,8 +344,11 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 		s.solved = true
 		return stats, nil
 	}
-	s.initialPoint()
-	lastPolish := math.Inf(1)
+	s.initialPoint(1, 1)
+	lastPolish := math.Inf(1)              // stopping residual at the last polishing attempt
+	progress, progressIt := math.Inf(1), 0 // for stall detection
+	bestRes := math.Inf(1)                 // stopping residual of the best iterate, kept in lamB, yB, betaB
+	restarts := 0
 	for it := 0; ; it++ {
 		natural, velocity, relaxed, gap := s.evaluate()
 		stats.Iterations, stats.Complementarity, stats.Gap = it, natural, gap
@@ -346,32 +366,79 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			s.solved = true
 			return stats, nil
 		}
+		// The stopping residual with the velocity one brought to the same
+		// footing (see trialResidual).
+		current := stats.Residual
 		if s.kappa == 0 {
-			// Polish once close, again whenever the iterate has come
-			// another two orders of magnitude closer, and as a last resort.
-			current := math.Max(stats.Residual, velocity*s.tolRatio)
-			if (current <= polishStart && current <= 0.01*lastPolish) || (it >= set.MaxIterations && current < lastPolish) {
-				lastPolish = current
-				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance); ok {
-					copy(lambda, s.lamP)
-					copy(s.u, s.uP)
-					stats.Residual, stats.Complementarity, stats.VelocityResidual = nat, nat, vel
-					stats.Gap = s.exactGap(s.lamP, s.uP)
-					stats.Polished = true
-					s.centralPoint(polishCentral * set.Tolerance * s.scaleL * s.scaleU)
-					s.solved = true
-					return stats, nil
-				}
+			current = math.Max(current, velocity*s.tolRatio)
+		}
+		if current < bestRes {
+			bestRes = current
+			copy(s.lamB, s.lam)
+			copy(s.yB, s.y)
+			copy(s.betaB, s.beta)
+		}
+		// Polish once close, and again whenever the iterate has come
+		// another two orders of magnitude closer.
+		if s.kappa == 0 && current <= polishStart && current <= 0.01*lastPolish {
+			lastPolish = current
+			if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, polishRounds); ok {
+				return s.finishPolished(set, &stats, lambda, nat, vel)
 			}
 		}
-		if it >= set.MaxIterations || math.IsNaN(stats.Residual) {
-			copy(lambda, s.lam)
+		if current < 0.5*progress {
+			progress, progressIt = current, it
+		}
+		stalled := it-progressIt >= stallIterations || math.IsNaN(current)
+		if stalled && restarts < len(restartScales) && set.MaxIterations-it >= restartBudget {
+			// Stalled: the central path from this start turned back
+			// (Coulomb friction is not monotone) or was lost. Try the modes
+			// read off the stalled iterate, then start again from a
+			// differently balanced point, whose path may avoid the fold.
+			if s.kappa == 0 && !math.IsNaN(current) && current < lastPolish {
+				lastPolish = current
+				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, polishRounds); ok {
+					return s.finishPolished(set, &stats, lambda, nat, vel)
+				}
+			}
+			sc := restartScales[restarts]
+			restarts++
+			stats.Restarts = restarts
+			s.initialPoint(sc[0], sc[1])
+			progress, progressIt, lastPolish = math.Inf(1), it, math.Inf(1)
+			continue
+		}
+		if it >= set.MaxIterations || (math.IsNaN(current) && restarts == len(restartScales)) {
 			reason := "iteration limit reached"
-			if math.IsNaN(stats.Residual) {
+			if math.IsNaN(current) {
 				reason = "iterate became NaN"
 			}
+			if !math.IsInf(bestRes, 1) && !(bestRes >= current) {
+				// Fall back to the best iterate seen.
+				copy(s.lam, s.lamB)
+				copy(s.y, s.yB)
+				copy(s.beta, s.betaB)
+				natural, velocity, relaxed, stats.Gap = s.evaluate()
+				stats.Complementarity, stats.VelocityResidual = natural, velocity
+				stats.Residual = math.Max(natural, relaxed)
+				if s.kappa > 0 {
+					stats.Residual = relaxed
+				}
+			}
+			if s.kappa == 0 && !math.IsInf(bestRes, 1) {
+				// Last resorts: the modes read off the best iterate with
+				// active-set corrections, then every single change of one
+				// contact's or row's mode.
+				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, polishRounds); ok {
+					return s.finishPolished(set, &stats, lambda, nat, vel)
+				}
+				if ok, nat, vel := s.polishNeighbours(set.Tolerance, set.VelocityTolerance); ok {
+					return s.finishPolished(set, &stats, lambda, nat, vel)
+				}
+			}
+			copy(lambda, s.lam)
 			return stats, &SolveError{Iterations: it, Residual: stats.Residual, Tolerance: set.Tolerance,
-				VelocityResidual: velocity, VelocityTolerance: set.VelocityTolerance, Reason: reason}
+				VelocityResidual: stats.VelocityResidual, VelocityTolerance: set.VelocityTolerance, Reason: reason}
 		}
 		alpha := s.iterate(gap, true)
 		if alpha < shortStep {
@@ -414,6 +481,19 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 	}
 }
 
+// finishPolished ends a solve with the polished solution (s.lamP, s.uP)
+// of natural and velocity residuals nat and vel.
+func (s *Solver) finishPolished(set SolverSettings, stats *SolveStats, lambda []float64, nat, vel float64) (SolveStats, error) {
+	copy(lambda, s.lamP)
+	copy(s.u, s.uP)
+	stats.Residual, stats.Complementarity, stats.VelocityResidual = nat, nat, vel
+	stats.Gap = s.exactGap(s.lamP, s.uP)
+	stats.Polished = true
+	s.centralPoint(polishCentral * set.Tolerance * s.scaleL * s.scaleU)
+	s.solved = true
+	return *stats, nil
+}
+
 // trialResidual returns the stopping residual at the point a step alpha
 // along (s.dlam, s.dy, s.dbeta), leaving the iterate unchanged.
 func (s *Solver) trialResidual(alpha float64) float64 {
@@ -448,6 +528,18 @@ func better(r, a, rb, ab, current float64) bool {
 	}
 	return a > ab
 }
+
+// stallIterations is the number of iterations without halving the
+// stopping residual after which a solve is deemed stalled and restarted.
+const stallIterations = 6
+
+// restartBudget is the least number of iterations left for a restart to be
+// worth it.
+const restartBudget = 10
+
+// restartScales are the multipliers of the initial impulses and velocities
+// (see initialPoint) of successive restarts.
+var restartScales = [...][2]float64{{0.1, 1}, {10, 1}, {1, 10}, {1, 0.1}}
 
 // shortStep is the step length below which a predictor–corrector step is
 // deemed to have failed and the fallbacks are tried.
@@ -553,7 +645,7 @@ func (s *Solver) numPairs() int {
 }
 
 // initialPoint sets an interior starting point of the scale of the problem.
-func (s *Solver) initialPoint() {
+func (s *Solver) initialPoint(lMul, yMul float64) {
 	n := s.n
 	bmax, wmax := 0.0, 0.0
 	for i := range n {
@@ -570,7 +662,8 @@ func (s *Solver) initialPoint() {
 	if yScale == 0 {
 		yScale = math.Max(math.Sqrt(s.kappa), 1e-8)
 	}
-	lScale := yScale / wmax
+	lScale := yScale / wmax * lMul
+	yScale *= yMul
 	for i := range n {
 		s.lam[i], s.y[i] = lScale, yScale
 	}

@@ -50,6 +50,9 @@ const polishStart = 1e-8
 // have.
 const polishCentral = 1e-2
 
+// polishRounds bounds the active-set corrections of one polishing attempt.
+var polishRounds = 6
+
 // polishSteps bounds the Newton steps of one polishing attempt.
 const polishSteps = 6
 
@@ -170,13 +173,38 @@ func (s *Solver) polishFactor() bool {
 }
 
 // polish tries to finish the solve from the current iterate (see the
-// comment at the top of this file). On success the polished impulses are
-// in s.lamP, their velocities in s.uP, and it returns their natural and
-// velocity residuals.
-func (s *Solver) polish(tol, vtol float64) (ok bool, natural, velocity float64) {
-	n := s.n
+// comment at the top of this file), reading the modes off the iterate and,
+// for up to rounds more attempts, off the previous polished point (an
+// active-set correction: a contact whose polished impulse or velocity
+// violates its mode is given the mode the natural map assigns it). On
+// success the polished impulses are in s.lamP, their velocities in s.uP,
+// and it returns their natural and velocity residuals.
+func (s *Solver) polish(tol, vtol float64, rounds int) (ok bool, natural, velocity float64) {
 	sliding := s.classify()
 	copy(s.lamP, s.lam)
+	for round := 0; ; round++ {
+		if s.polishNewton(sliding) {
+			natural, velocity = s.naturalAt(s.lamP, s.uP)
+			if natural <= tol && velocity <= vtol {
+				return true, natural, velocity
+			}
+		}
+		if round >= rounds {
+			return false, natural, velocity
+		}
+		var changed bool
+		if sliding, changed = s.reclassify(s.lamP, s.uP); !changed {
+			return false, natural, velocity
+		}
+	}
+}
+
+// polishNewton runs the Newton iteration of the mode equations given by
+// s.kind from s.lamP (whose rows of kind rowZero it zeroes first). It
+// leaves the result in s.lamP and its velocity in s.uP and reports false
+// when the Jacobian could not be factored.
+func (s *Solver) polishNewton(sliding bool) bool {
+	n := s.n
 	for i := range n {
 		if s.kind[i] == rowZero {
 			s.lamP[i] = 0
@@ -202,7 +230,7 @@ func (s *Solver) polish(tol, vtol float64) (ok bool, natural, velocity float64) 
 		prev = f
 		if !factored || sliding {
 			if !s.polishFactor() {
-				return false, 0, 0
+				return false
 			}
 			factored = true
 		}
@@ -228,9 +256,104 @@ func (s *Solver) polish(tol, vtol float64) (ok bool, natural, velocity float64) 
 		}
 	}
 	s.velocityAt(s.lamP, s.uP)
-	natural, velocity = s.naturalAt(s.lamP, s.uP)
-	ok = natural <= tol && velocity <= vtol
-	return ok, natural, velocity
+	return true
+}
+
+// polishNeighbours tries the modes read off the iterate with one contact's
+// or one unilateral row's mode changed, each in turn: the last resort of a
+// solve whose interior-point iterate hovers between solutions (friction
+// problems can have several) without approaching any of them.
+func (s *Solver) polishNeighbours(tol, vtol float64) (ok bool, natural, velocity float64) {
+	s.classify()
+	copy(s.kindB, s.kind)
+	try := func() bool {
+		sliding := false
+		for c := range s.nc {
+			sliding = sliding || s.kind[3*c+1] == rowSlide
+		}
+		copy(s.lamP, s.lam)
+		if !s.polishNewton(sliding) {
+			return false
+		}
+		natural, velocity = s.naturalAt(s.lamP, s.uP)
+		return natural <= tol && velocity <= vtol
+	}
+	modes := [3][3]int8{
+		{rowZero, rowZero, rowZero},
+		{rowVelocity, rowVelocity, rowVelocity},
+		{rowVelocity, rowSlide, rowSlide},
+	}
+	for c := range s.nc {
+		i := 3 * c
+		for k, md := range modes {
+			if md == [3]int8(s.kindB[i:i+3]) || (s.mu[c] == 0 && k == 2) {
+				continue
+			}
+			copy(s.kind, s.kindB)
+			if s.mu[c] == 0 && k == 1 {
+				md = [3]int8{rowVelocity, rowZero, rowZero}
+				if md == [3]int8(s.kindB[i:i+3]) {
+					continue
+				}
+			}
+			copy(s.kind[i:i+3], md[:])
+			if try() {
+				return true, natural, velocity
+			}
+		}
+	}
+	for i := 3 * s.nc; i < s.n; i++ {
+		copy(s.kind, s.kindB)
+		s.kind[i] = rowVelocity + rowZero - s.kind[i]
+		if try() {
+			return true, natural, velocity
+		}
+	}
+	return false, natural, velocity
+}
+
+// reclassify sets the row kinds from the point (lam, u) by the natural map
+// of the exact conditions: x = λ − ρ ũ projected onto the Coulomb cone
+// lands inside it (sticking), at its apex (separating) or on its side
+// (sliding); a unilateral row is active where λ − ρ u > 0. It reports
+// whether any contact slides and whether any kind changed.
+func (s *Solver) reclassify(lam, u []float64) (sliding, changed bool) {
+	set := func(i int, k0, k1, k2 int8) {
+		if s.kind[i] != k0 || s.kind[i+1] != k1 || s.kind[i+2] != k2 {
+			changed = true
+		}
+		s.kind[i], s.kind[i+1], s.kind[i+2] = k0, k1, k2
+	}
+	for c := range s.nc {
+		i := 3 * c
+		m := s.mu[c]
+		rho := s.rowRho(i)
+		nut := math.Hypot(u[i+1], u[i+2])
+		x := soc3{lam[i] - rho*(u[i]+m*nut), lam[i+1] - rho*u[i+1], lam[i+2] - rho*u[i+2]}
+		nx := math.Hypot(x[1], x[2])
+		switch {
+		case x[0] <= 0 && m*nx <= -x[0]:
+			set(i, rowZero, rowZero, rowZero)
+		case m == 0:
+			set(i, rowVelocity, rowZero, rowZero)
+		case nx <= m*x[0] || nut == 0:
+			set(i, rowVelocity, rowVelocity, rowVelocity)
+		default:
+			set(i, rowVelocity, rowSlide, rowSlide)
+			sliding = true
+		}
+	}
+	for i := 3 * s.nc; i < s.n; i++ {
+		k := rowZero
+		if lam[i]-s.rowRho(i)*u[i] > 0 {
+			k = rowVelocity
+		}
+		if s.kind[i] != k {
+			changed = true
+		}
+		s.kind[i] = k
+	}
+	return sliding, changed
 }
 
 // exactGap returns Σ λᵀũ over the contacts plus Σ λ u over the unilateral

@@ -544,15 +544,19 @@ func TestRandomStacks(t *testing.T) {
 	// friction, pushes, spins and separations. Checked by the independent
 	// De Saxcé checker and the mode-wise Coulomb law.
 	//
-	// Known weakness: a few of these stall near the end at a velocity
-	// residual of ~1e-8 m/s, when a sliding contact with a small impulse
-	// reaches the precision limit of the cone representation. Such solves
-	// must report a *SolveError (never a silent wrong answer), and they must
-	// stay rare.
+	// Known weakness: a few in a thousand of these random problems
+	// (high friction, spins, contacts at random points) defeats every
+	// fallback: the interior-point iterates hover between solutions
+	// (frictional problems can have several) and the modes read off them
+	// are wrong in more than one contact. Such solves must report a
+	// *SolveError (never a silent wrong answer), and they must stay rare.
 	rng := rand.New(rand.NewPCG(41, 42))
 	s := NewSolver()
-	sumIt, maxIt, fails := 0, 0, 0
-	const trials = 500
+	sumIt, maxIt, fails, restarted := 0, 0, 0, 0
+	trials := 2000
+	if testing.Short() {
+		trials = 500
+	}
 	for trial := range trials {
 		k := 1 + rng.IntN(4)
 		bx := rigidBox{m: 0.2 + 2*rng.Float64(), a: 0.02 + 0.1*rng.Float64(), b: 0.02 + 0.1*rng.Float64(), c: 0.01 + 0.05*rng.Float64()}
@@ -576,11 +580,14 @@ func TestRandomStacks(t *testing.T) {
 		}
 		sumIt += st.Iterations
 		maxIt = max(maxIt, st.Iterations)
+		if st.Restarts > 0 {
+			restarted++
+		}
 	}
-	if fails > trials/50 {
-		t.Errorf("%d of %d solves failed", fails, trials)
+	if fails > trials/200 {
+		t.Errorf("%d of %d solves failed, want at most %d", fails, trials, trials/200)
 	}
-	t.Logf("failures %d/%d; iterations: mean %.1f, max %d", fails, trials, float64(sumIt)/float64(trials-fails), maxIt)
+	t.Logf("failures %d/%d, restarted %d; iterations: mean %.1f, max %d", fails, trials, restarted, float64(sumIt)/float64(trials-fails), maxIt)
 }
 
 func TestSolveErrors(t *testing.T) {
