@@ -846,3 +846,79 @@ func infNorm(a []float64) float64 {
 	}
 	return m
 }
+
+// TuneTrace is a nominal rollout for plots: the joints of the actuators,
+// their reference where tracked, and the commanded efforts.
+type TuneTrace struct {
+	Times  []float64
+	Joints []string    // actuator names
+	Q      [][]float64 // [joint][step]
+	Ref    [][]float64 // [joint][step], nil for joints not tracked
+	Effort [][]float64 // commanded, [joint][step]
+}
+
+// Trajectory simulates the nominal model (the problem's model, no
+// parameter sample) with gains x over the horizon.
+func (t *Tuner) Trajectory(x []float64) (*TuneTrace, error) {
+	st := t.st
+	m := sim.CopyModel(st.p.Model)
+	for j, g := range st.gains {
+		g.Set(m, x[j])
+	}
+	s, err := sim.New(m, st.p.Settings)
+	if err != nil {
+		return nil, err
+	}
+	na := len(m.Actuators)
+	tr := &TuneTrace{Q: make([][]float64, na), Ref: make([][]float64, na), Effort: make([][]float64, na)}
+	qOff, vOff, _, _ := s.Layout()
+	ref := []float64(nil)
+	if st.ref != nil {
+		ref = make([]float64, len(st.ref.Values[0]))
+	}
+	in := sim.ControlInput{Q: make([]float64, na), QD: make([]float64, na)}
+	out := sim.ControlOutput{Effort: make([]float64, na), Stiffness: make([]float64, na), Damping: make([]float64, na)}
+	for _, a := range m.Actuators {
+		tr.Joints = append(tr.Joints, a.Name)
+	}
+	for k := 0; k <= st.p.Steps; k++ {
+		if k > 0 {
+			if err := s.Step(); err != nil {
+				return nil, err
+			}
+		}
+		tt := float64(k) * st.h
+		tr.Times = append(tr.Times, tt)
+		q, v := s.Q(), s.V()
+		in.T = tt
+		for a, act := range m.Actuators {
+			in.Q[a], in.QD[a] = q[qOff[act.Body]], v[vOff[act.Body]]
+			out.Effort[a], out.Stiffness[a], out.Damping[a] = 0, 0, 0
+			tr.Q[a] = append(tr.Q[a], in.Q[a])
+		}
+		m.Controller.Command(&in, &out)
+		for a := range m.Actuators {
+			tr.Effort[a] = append(tr.Effort[a], out.Effort[a])
+		}
+		if ref != nil {
+			st.ref.At(tt, ref)
+			for c, a := range st.trackAct {
+				tr.Ref[a] = append(tr.Ref[a], ref[st.trackCol[c]])
+			}
+		}
+	}
+	return tr, nil
+}
+
+// TunedModel returns a copy of m with the tuned gains set.
+func (r *TuneResult) TunedModel(m *sim.Model) (*sim.Model, error) {
+	c := sim.CopyModel(m)
+	for j, n := range r.Names {
+		p, err := sim.ParseParam(c, n)
+		if err != nil {
+			return nil, err
+		}
+		p.Set(c, r.Tuned[j])
+	}
+	return c, nil
+}
