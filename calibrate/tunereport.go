@@ -120,7 +120,7 @@ func (r *TuneResult) JSON(t *Tuner, info TuneReportInfo, plots []string) ([]byte
 	doc := jsonTuneReport{Format: TuneReportFormat, Scene: info.Scene, TunedScene: info.TunedScene, FitReport: info.FitReport,
 		Uncertain: append([]string{}, t.st.p.Uncertain...), Samples: len(t.st.p.Draws), Seed: info.Seed, Horizon: info.Horizon,
 		Weights: map[string]tnum{"tracking": tnum(w.Tracking), "effort": tnum(w.Effort), "effort_limit": tnum(w.EffortLimit), "final_pose": tnum(w.FinalPose)},
-		Before: costJSON(r.Before), After: costJSON(r.After), Status: r.Status, Converged: r.Converged,
+		Before:  costJSON(r.Before), After: costJSON(r.After), Status: r.Status, Converged: r.Converged,
 		Iterations: len(r.History) - 1, Evaluations: r.Evaluations, History: r.History,
 		Warnings: append([]string{}, info.Warnings...), Caution: SafetyCaution, Plots: append([]string{}, plots...)}
 	for j, n := range r.Names {
