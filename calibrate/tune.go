@@ -117,6 +117,7 @@ type tuneSetup struct {
 	upper    []float64
 	initial  []float64
 	h        float64
+	kappa    float64 // contact smoothing of the current stage
 }
 
 // pdController returns the PD controller of m, directly or in a sum.
@@ -155,7 +156,7 @@ func (p *TuneProblem) setup() (*tuneSetup, error) {
 	if m == nil {
 		return nil, errors.New("tune: no model")
 	}
-	st := &tuneSetup{p: p, h: p.Settings.WithDefaults().TimeStep, poseBody: -1}
+	st := &tuneSetup{p: p, h: p.Settings.WithDefaults().TimeStep, poseBody: -1, kappa: p.Settings.Solver.Smoothing}
 	if pdController(m) == nil {
 		return nil, errors.New("the scene has no PD controller: there are no gains to tune")
 	}
@@ -310,7 +311,9 @@ func (st *tuneSetup) rollout(i int, x []float64, grad []float64) (TermCosts, err
 	for j, g := range st.gains {
 		g.Set(m, x[j])
 	}
-	s, err := sim.New(m, st.p.Settings)
+	set := st.p.Settings
+	set.Solver.Smoothing = st.kappa
+	s, err := sim.New(m, set)
 	if err != nil {
 		return TermCosts{}, err
 	}
@@ -644,18 +647,28 @@ func (t *Tuner) Evaluate(x []float64, withGrad bool) (*Evaluation, error) {
 type TuneSettings struct {
 	// Iterations bounds the accepted steps (default 60).
 	Iterations int
-	// GradTol: stop when the projected gradient step, in units of each
-	// gain's bound range, is below this (default 1e-6).
+	// GradTol: stop when the projected gradient step or an accepted step,
+	// in units of each gain's bound range, is below this (default 1e-6).
 	GradTol float64
 	// CostTol: stop when an accepted step lowers the cost by less than
 	// this fraction (default 1e-10).
 	CostTol float64
+	// Smoothing is a schedule of contact smoothing κ
+	// (sim.Settings.Solver.Smoothing), large to small: one descent stage
+	// per value, each starting where the last ended. Through stick/slip
+	// and touch-down the exact (κ = 0) derivative ignores when contacts
+	// switch, so its gradients can point the wrong way; a small κ gives
+	// the smoothed cost's exact gradient. Nil keeps the problem's
+	// setting. Costs before and after are reported at the last κ.
+	Smoothing []float64
 	// Progress, if not nil, is called after every accepted step.
 	Progress func(TuneIteration)
 }
 
 // TuneIteration is one accepted step of the minimization.
 type TuneIteration struct {
+	Stage int       `json:"stage"`
+	Kappa float64   `json:"smoothing"`
 	Iter  int       `json:"iteration"`
 	Cost  float64   `json:"cost"`
 	Step  float64   `json:"step"` // max change of a gain, in units of its bound range
@@ -703,6 +716,16 @@ func (t *Tuner) Tune(set TuneSettings) (*TuneResult, error) {
 	if set.CostTol <= 0 {
 		set.CostTol = 1e-10
 	}
+	schedule := set.Smoothing
+	if len(schedule) == 0 {
+		schedule = []float64{st.kappa}
+	}
+	for i, k := range schedule {
+		if !(k >= 0) || math.IsInf(k, 0) || (i > 0 && k > schedule[i-1]) {
+			return nil, fmt.Errorf("smoothing schedule %v: want values ≥ 0 from large to small", schedule)
+		}
+	}
+	defer func(k float64) { st.kappa = k }(st.kappa)
 	n := len(st.gains)
 	res := &TuneResult{Lower: slices.Clone(st.lower), Upper: slices.Clone(st.upper), Initial: slices.Clone(st.initial)}
 	for _, g := range st.gains {
@@ -735,94 +758,112 @@ func (t *Tuner) Tune(set TuneSettings) (*TuneResult, error) {
 	for j := range u {
 		u[j] = (st.initial[j] - st.lower[j]) / span[j]
 	}
-	cur, err := t.Evaluate(toGains(u), true)
-	if err != nil {
-		return nil, fmt.Errorf("evaluating the initial gains: %w", err)
-	}
-	res.Before = cur
-	g := scaledGrad(cur)
-	record := func(iter int, step float64) {
-		it := TuneIteration{Iter: iter, Cost: cur.Mean, Step: step, Gains: slices.Clone(cur.Gains),
-			Elapsed: time.Since(begin).Seconds(), Evaluations: t.evals}
-		res.History = append(res.History, it)
-		if set.Progress != nil {
-			set.Progress(it)
+	iter := 0
+	var cur *Evaluation
+	for stage, kappa := range schedule {
+		st.kappa = kappa
+		var err error
+		cur, err = t.Evaluate(toGains(u), true)
+		if err != nil {
+			return nil, fmt.Errorf("smoothing %g: evaluating the starting gains: %w", kappa, err)
 		}
-	}
-	record(0, 0)
-	// First step length: a tenth of the range along the largest component.
-	alpha := 0.1 / math.Max(infNorm(g), 1e-300)
-	const armijo = 1e-4
-	res.Status = "iteration limit reached"
-	for iter := 1; iter <= set.Iterations; iter++ {
-		// Projected gradient test at unit step length.
-		pg := make([]float64, n)
-		for j := range pg {
-			pg[j] = math.Min(1, math.Max(0, u[j]-g[j])) - u[j]
-		}
-		if infNorm(pg) < set.GradTol {
-			res.Status, res.Converged = "projected gradient below tolerance", true
-			break
-		}
-		d := make([]float64, n)
-		trial := make([]float64, n)
-		for j := range d {
-			trial[j] = u[j] - alpha*g[j]
-		}
-		project(trial)
-		for j := range d {
-			d[j] = trial[j] - u[j]
-		}
-		gd := dot(g, d)
-		lambda := 1.0
-		var next *Evaluation
-		accepted := false
-		for ls := 0; ls < 40; ls++ {
-			for j := range trial {
-				trial[j] = u[j] + lambda*d[j]
+		g := scaledGrad(cur)
+		record := func(step float64) {
+			it := TuneIteration{Stage: stage, Kappa: kappa, Iter: iter, Cost: cur.Mean, Step: step, Gains: slices.Clone(cur.Gains),
+				Elapsed: time.Since(begin).Seconds(), Evaluations: t.evals}
+			res.History = append(res.History, it)
+			if set.Progress != nil {
+				set.Progress(it)
 			}
-			project(trial)
-			next, err = t.Evaluate(toGains(trial), true)
-			if err != nil {
-				return nil, fmt.Errorf("iteration %d: %w", iter, err)
+		}
+		record(0)
+		// First step length: a tenth of the range along the largest
+		// component.
+		alpha := 0.1 / math.Max(infNorm(g), 1e-300)
+		const armijo = 1e-4
+		res.Status, res.Converged = "iteration limit reached", false
+		for k := 1; k <= set.Iterations; k++ {
+			// Projected gradient test at unit step length.
+			pg := make([]float64, n)
+			for j := range pg {
+				pg[j] = math.Min(1, math.Max(0, u[j]-g[j])) - u[j]
 			}
-			if next.Mean <= cur.Mean+armijo*lambda*gd {
-				accepted = true
+			if infNorm(pg) < set.GradTol {
+				res.Status, res.Converged = "projected gradient below tolerance", true
 				break
 			}
-			// Minimizer of the quadratic through f(0), f'(0) and f(λ),
-			// safeguarded to [0.1λ, 0.5λ].
-			den := 2 * (next.Mean - cur.Mean - lambda*gd)
-			lt := 0.5 * lambda
-			if den > 0 {
-				lt = -gd * lambda * lambda / den
+			d := make([]float64, n)
+			trial := make([]float64, n)
+			for j := range d {
+				trial[j] = u[j] - alpha*g[j]
 			}
-			lambda = math.Min(0.5*lambda, math.Max(0.1*lambda, lt))
+			project(trial)
+			for j := range d {
+				d[j] = trial[j] - u[j]
+			}
+			gd := dot(g, d)
+			lambda := 1.0
+			var next *Evaluation
+			accepted := false
+			for ls := 0; ls < 30; ls++ {
+				for j := range trial {
+					trial[j] = u[j] + lambda*d[j]
+				}
+				project(trial)
+				next, err = t.Evaluate(toGains(trial), true)
+				if err != nil {
+					return nil, fmt.Errorf("smoothing %g, iteration %d: %w", kappa, k, err)
+				}
+				if next.Mean <= cur.Mean+armijo*lambda*gd {
+					accepted = true
+					break
+				}
+				// Minimizer of the quadratic through f(0), f'(0) and
+				// f(λ), safeguarded to [0.1λ, 0.5λ].
+				den := 2 * (next.Mean - cur.Mean - lambda*gd)
+				lt := 0.5 * lambda
+				if den > 0 {
+					lt = -gd * lambda * lambda / den
+				}
+				lambda = math.Min(0.5*lambda, math.Max(0.1*lambda, lt))
+			}
+			if !accepted {
+				// The gradient promises a decrease the cost does not show:
+				// the cost is not smooth here at this κ.
+				res.Status = "line search found no decrease (the cost is not smooth here; a larger smoothing κ may help)"
+				break
+			}
+			iter++
+			gn := scaledGrad(next)
+			s := make([]float64, n)
+			y := make([]float64, n)
+			for j := range s {
+				s[j] = trial[j] - u[j]
+				y[j] = gn[j] - g[j]
+			}
+			drop := cur.Mean - next.Mean
+			copy(u, trial)
+			cur, g = next, gn
+			record(infNorm(s))
+			if sy := dot(s, y); sy > 0 {
+				alpha = math.Min(1e10, math.Max(1e-10, dot(s, s)/sy))
+			} else {
+				alpha = 1e10
+			}
+			if infNorm(s) < set.GradTol {
+				res.Status, res.Converged = "step below tolerance", true
+				break
+			}
+			if drop <= set.CostTol*math.Max(math.Abs(cur.Mean), 1e-300) {
+				res.Status, res.Converged = "cost change below tolerance", true
+				break
+			}
 		}
-		if !accepted {
-			res.Status, res.Converged = "line search found no decrease (the cost is flat or not smooth here)", true
-			break
-		}
-		gn := scaledGrad(next)
-		s := make([]float64, n)
-		y := make([]float64, n)
-		for j := range s {
-			s[j] = trial[j] - u[j]
-			y[j] = gn[j] - g[j]
-		}
-		drop := cur.Mean - next.Mean
-		copy(u, trial)
-		cur, g = next, gn
-		record(iter, infNorm(s))
-		if sy := dot(s, y); sy > 0 {
-			alpha = math.Min(1e10, math.Max(1e-10, dot(s, s)/sy))
-		} else {
-			alpha = 1e10
-		}
-		if drop <= set.CostTol*math.Max(math.Abs(cur.Mean), 1e-300) {
-			res.Status, res.Converged = "cost change below tolerance", true
-			break
-		}
+	}
+	var err error
+	res.Before, err = t.Evaluate(slices.Clone(st.initial), false)
+	if err != nil {
+		return nil, fmt.Errorf("evaluating the initial gains: %w", err)
 	}
 	res.Tuned = slices.Clone(cur.Gains)
 	res.After = cur

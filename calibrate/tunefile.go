@@ -41,8 +41,12 @@ type TuneFile struct {
 	Cost TuneCostSpec `yaml:"cost"`
 	// Uncertainty draws parameter samples from a fit report.
 	Uncertainty *TuneUncertaintySpec `yaml:"uncertainty"`
-	// Iterations bounds the accepted descent steps (default 60).
+	// Iterations bounds the accepted descent steps per smoothing stage
+	// (default 60).
 	Iterations int `yaml:"iterations"`
+	// Smoothing is the contact-smoothing schedule κ, large to small (see
+	// TuneSettings.Smoothing); default: exact contact (κ = 0).
+	Smoothing []float64 `yaml:"smoothing"`
 
 	line map[string]int // top-level key → line
 }
@@ -179,6 +183,14 @@ func ParseTuneFile(src []byte, path string) (*TuneFile, error) {
 	}
 	if f.Iterations < 0 {
 		return nil, fail(f.line["iterations"], "iterations", "must be positive")
+	}
+	for i, k := range f.Smoothing {
+		if !(k >= 0) || math.IsInf(k, 0) {
+			return nil, fail(f.line["smoothing"], fmt.Sprintf("smoothing[%d]", i), "%v: κ must be zero or positive", k)
+		}
+		if i > 0 && k > f.Smoothing[i-1] {
+			return nil, fail(f.line["smoothing"], fmt.Sprintf("smoothing[%d]", i), "%v follows %v: the schedule runs from large to small", k, f.Smoothing[i-1])
+		}
 	}
 	if f.Task.Reference != nil && f.Task.Track != nil {
 		return nil, fail(f.line["task"], "task", "give either track (follow the scene's PD targets) or reference (a table of its own), not both")
