@@ -6,15 +6,71 @@ import (
 	"gonum.org/v1/gonum/spatial/r3"
 )
 
-// Box–box features: bit 29 tags them; bit 28 says which box holds the
-// reference face (set: B). Face contacts store the reference face in bits
-// 0–2, the incident face in bits 3–5 and the clipped vertex in bits 6–13
-// (kind, then two ids). Edge contacts set bit 27 and store the two edges.
+// Box–box Feature layout (the pair is never swapped: both shapes are
+// boxes, so A is always the first box passed to Collide):
+//
+//	bit 29      featBoxBox, set on every box–box point
+//	bit 28      featRefIsB: B holds the reference face (face points)
+//	bit 27      featBoxEdge: an edge–edge point
+//
+// Face points (bit 27 clear):
+//
+//	bits 0–2    reference face, 2·axis + 1 for the positive side
+//	bits 3–5    incident face, same numbering
+//	bits 6–7    kind of the clipped vertex (clipVert)
+//	bits 8–10   its first id a (incident corner or edge, or side plane)
+//	bits 11–13  its second id b (side plane)
+//
+// Edge points (bit 27 set):
+//
+//	bits 0–3    e = 3i + j for edge axis i of A and j of B
+//	bits 4–6    which side of A's other axes the edge of A lies on
+//	bits 8–10   the same for B's edge
+//	bits 12–13  closest point of A's edge: interior or an end (segFeature)
+//	bits 14–15  the same for B's edge
+//
+// The fields do not overlap, so two points with equal codes come from the
+// same features. tangent_boxbox.go decodes this layout.
 const (
 	featBoxBox  = 1 << 29
 	featRefIsB  = 1 << 28
 	featBoxEdge = 1 << 27
 )
+
+// Tie margins of the axis choice. An axis must beat the one it replaces
+// by more than boxTieRel·|best separation| + boxTieAbs: B's faces must so
+// beat A's, and an edge axis the best face axis. Exact ties are common
+// (two boxes face to face share an axis; an edge–edge axis of a vertical
+// edge and a horizontal one is a face normal), and without a margin a
+// 1e-6 turn picks the winner, turning a four-point face manifold into
+// one edge point or swapping reference and incident box. 5 % of the
+// depth keeps a resting contact's choice through ordinary changes of
+// penetration; 1e-5 m (10 µm) is far above the rounding of the
+// separations (1e-16 of the sizes) and the 1e-6 steps of finite
+// differences, and far below any size of the scenes (mm and up). A face
+// axis so kept over a slightly better edge axis overstates the depth by
+// at most the margin.
+const (
+	boxTieRel = 0.05
+	boxTieAbs = 1e-5
+)
+
+// edgeParallelTol is the sine of the angle between an edge of A and one of
+// B below which their cross product is not used as an axis. For nearly
+// parallel edges that axis is set by the small misalignment rather than
+// by where the boxes are, and it can beat the face axes by no more than
+// the misalignment times the edge lengths; those configurations (boxes
+// level on one table, faces side by side) are face contacts.
+const edgeParallelTol = 1e-3
+
+// boxClipSlack widens the side planes of the reference face when the
+// incident face is clipped, so that an incident edge lying in a side
+// plane (the coplanar tops and bottoms of boxes side by side on a table)
+// is inside it by boxClipSlack rather than on it: its corners stay corners
+// under tiny moves instead of flipping between corners and crossings.
+// Points may lie outside the reference face by up to this much; 1e-5 m is
+// chosen as boxTieAbs is.
+const boxClipSlack = boxTieAbs
 
 // clipVert is a vertex of the incident face while it is clipped. Its
 // feature is kind 0: incident vertex a; kind 1: incident edge a meets
@@ -94,9 +150,9 @@ func boxBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) [
 		}
 	}
 
-	// Faces of A, then faces of B; B only wins if strictly better, and an
-	// edge only if clearly better, so that ties resolve the same way
-	// every time and resting contacts keep their faces.
+	// Faces of A, then faces of B; B only wins if clearly better, and an
+	// edge only if clearly better than every face, so that ties resolve
+	// the same way every time and resting contacts keep their faces.
 	bestSep, bestAxis := math.Inf(-1), -1
 	for i := 0; i < 3; i++ {
 		sep := math.Abs(r3.Dot(t, ax[i])) - ha[i] - (hb[0]*absC[i][0] + hb[1]*absC[i][1] + hb[2]*absC[i][2])
@@ -107,23 +163,28 @@ func boxBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) [
 			bestSep, bestAxis = sep, i
 		}
 	}
+	bestB, axisB := math.Inf(-1), -1
 	for j := 0; j < 3; j++ {
 		sep := math.Abs(r3.Dot(t, bx[j])) - hb[j] - (ha[0]*absC[0][j] + ha[1]*absC[1][j] + ha[2]*absC[2][j])
 		if sep >= margin {
 			return dst
 		}
-		if sep > bestSep+1e-9*math.Abs(bestSep)+1e-12 {
-			bestSep, bestAxis = sep, 3+j
+		if sep > bestB {
+			bestB, axisB = sep, 3+j
 		}
 	}
+	if bestAxis < 0 || bestB > bestSep+boxTieRel*math.Abs(bestSep)+boxTieAbs {
+		bestSep, bestAxis = bestB, axisB
+	}
 	faceSep := bestSep
+	edgeBar := faceSep + boxTieRel*math.Abs(faceSep) + boxTieAbs
 	var bestL r3.Vec
 	for i := 0; i < 3; i++ {
 		for j := 0; j < 3; j++ {
 			l := r3.Cross(ax[i], bx[j])
 			ln := r3.Norm(l)
-			if ln < 1e-6 {
-				continue // parallel edges: covered by the face axes
+			if !(ln >= edgeParallelTol) {
+				continue // (nearly) parallel edges: covered by the face axes
 			}
 			l = r3.Scale(1/ln, l)
 			var ra, rb float64
@@ -135,7 +196,7 @@ func boxBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) [
 			if sep >= margin {
 				return dst
 			}
-			if sep > faceSep+0.05*math.Abs(faceSep)+1e-9 && sep > bestSep {
+			if sep > edgeBar && sep > bestSep {
 				bestSep, bestAxis, bestL = sep, 6+3*i+j, l
 			}
 		}
@@ -204,9 +265,9 @@ func boxBox(a *Shape, pa Pose, b *Shape, pb Pose, margin float64, dst []Point) [
 	s := uint8(0)
 	for _, j := range [2]int{(k + 1) % 3, (k + 2) % 3} {
 		c := r3.Dot(rx[j], pr)
-		clipAgainst(in, out, rx[j], c+hr[j], s)
+		clipAgainst(in, out, rx[j], c+hr[j]+boxClipSlack, s)
 		in, out = out, in
-		clipAgainst(in, out, r3.Scale(-1, rx[j]), -c+hr[j], s+1)
+		clipAgainst(in, out, r3.Scale(-1, rx[j]), -c+hr[j]+boxClipSlack, s+1)
 		in, out = out, in
 		s += 2
 	}

@@ -67,12 +67,13 @@ func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32, pos r3
 		}
 		p = tAdd(p0, tScale(lam, e))
 	default:
-		// Corner of the reference face on side planes va and vb.
+		// Corner of the reference face, widened by boxClipSlack as
+		// boxBox clips, on side planes va and vb.
 		var x r3.Vec
 		setAt(&x, k, sr*vecAt(hr, k))
 		for _, s := range [2]int{va, vb} {
 			j := (k + 1 + s/2) % 3
-			setAt(&x, j, sideSign(s)*vecAt(hr, j))
+			setAt(&x, j, sideSign(s)*(vecAt(hr, j)+boxClipSlack))
 		}
 		corner := rf.point(x)
 		ki := int(incFace / 2)
@@ -107,11 +108,12 @@ func sideSign(s int) float64 {
 }
 
 // sidePlaneDist is the signed distance of p outside reference side plane
-// s (planes 0, 1 bound axis k+1, planes 2, 3 axis k+2, in boxBox's order).
+// s (planes 0, 1 bound axis k+1, planes 2, 3 axis k+2, in boxBox's order),
+// widened by boxClipSlack as boxBox clips.
 func sidePlaneDist(rf *tframe, hr r3.Vec, k, s int, p tvec) tnum {
 	j := (k + 1 + s/2) % 3
 	n := tScaleC(sideSign(s), rf.axis(j))
-	return nAddC(tDot(n, tSub(p, rf.origin())), -vecAt(hr, j))
+	return nAddC(tDot(n, tSub(p, rf.origin())), -vecAt(hr, j)-boxClipSlack)
 }
 
 // incidentCorner returns corner v of incident face f in boxBox's order:
