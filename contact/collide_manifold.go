@@ -12,6 +12,30 @@ import (
 // single point.
 const flatTol = 0.02
 
+// Feature layout of flatManifold's points, in each shape's 16-bit half
+// (packFeature):
+//
+//	bit 13      flatTag, set in both halves (0x4000, the convex-distance
+//	            route's tag, stays clear)
+//	bit 12      flatRef: this shape holds the reference feature
+//	bits 8–11   the flat feature's id (flatFeature.id, 0–11)
+//
+// and in the incident shape's half only, the clipped vertex (clipVert):
+//
+//	bits 6–7    its kind
+//	bits 3–5    its first id a (incident vertex or edge, or side plane)
+//	bits 0–2    its second id b (side plane)
+//
+// The fields do not overlap (ids < 16, vertex and plane numbers <
+// cylinderRingN = 8), so equal codes mean equal features.
+const (
+	flatTag       = 1 << 13
+	flatRef       = 1 << 12
+	flatIDShift   = 8
+	flatKindShift = 6
+	flatAShift    = 3
+)
+
 // flatFeature is a flat part of a core facing the other shape: a convex
 // polygon (n ≥ 3, in cyclic order) or a segment (n = 2).
 type flatFeature struct {
@@ -221,13 +245,8 @@ func flatManifold(sa, sb *convexShape, n r3.Vec, margin float64, dst []Point) ([
 		}
 		surfA := r3.Add(xa, r3.Scale(sa.sweep, n))
 		surfB := r3.Sub(xb, r3.Scale(sb.sweep, n))
-		f := uint32(v.kind)<<10 | uint32(v.a)<<5 | uint32(v.b)
-		fr, fi := 0x2000|ref.id<<10, 0x2000|inc.id<<10
-		if refIsA {
-			fi |= f
-		} else {
-			fr |= f
-		}
+		fr := flatTag | flatRef | ref.id<<flatIDShift
+		fi := flatTag | inc.id<<flatIDShift | uint32(v.kind)<<flatKindShift | uint32(v.a)<<flatAShift | uint32(v.b)
 		fa, fb := fr, fi
 		if !refIsA {
 			fa, fb = fi, fr

@@ -612,3 +612,66 @@ func TestBoxBoxManifoldStable(t *testing.T) {
 		})
 	}
 }
+
+// TestFlatManifoldFeatures decodes the Feature codes of flat-on-flat
+// manifolds (flatManifold's layout): each half carries the tag and the id
+// of its own flat feature (box face 2·axis + 1 for the positive side,
+// cylinder cap 8 below and 9 above, side 10), the reference half carries
+// flatRef and nothing else, and the points of one manifold have distinct
+// codes. The ids expected are read off the geometry of each scene.
+func TestFlatManifoldFeatures(t *testing.T) {
+	tests := []struct {
+		name      string
+		a         *Shape
+		pa        Pose
+		b         *Shape
+		pb        Pose
+		idA, idB  uint32
+		refIsA    bool
+		minPoints int
+	}{
+		// A cylinder standing 1 mm deep on a box: box top (+z, id 5)
+		// against the cylinder's lower cap (id 8); the box face is the
+		// reference, and the eight rim points lie inside it.
+		{"cylinder standing on box", box(0.3, 0.3, 0.1), IdentityPose, cylinder(0.1, 0.2), at(0.05, 0, 0.1+0.2-0.001), 5, 8, true, cylinderRingN},
+		// Lying on it: the side line (id 10) clipped to the face.
+		{"cylinder lying on box", box(0.3, 0.3, 0.1), IdentityPose, cylinder(0.1, 0.2), atRot(0, 0.05, 0.1+0.1-0.001, ex, math.Pi/2), 5, 10, true, 2},
+		// The same pair passed the other way round: halves swap.
+		{"box under cylinder, swapped", cylinder(0.1, 0.2), at(0.05, 0, 0.1+0.2-0.001), box(0.3, 0.3, 0.1), IdentityPose, 8, 5, false, cylinderRingN},
+		// Two cylinders stacked, offset: upper cap (9) of A, lower (8) of B.
+		{"cylinders stacked", cylinder(0.1, 0.2), IdentityPose, cylinder(0.1, 0.2), at(0.05, 0.02, 0.4-0.001), 9, 8, true, 3},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			ps := Collide(tc.a, tc.pa, tc.b, tc.pb, 0.005, nil)
+			if len(ps) < tc.minPoints {
+				t.Fatalf("got %d points, want at least %d", len(ps), tc.minPoints)
+			}
+			seen := map[uint32]bool{}
+			for _, p := range ps {
+				if seen[p.Feature] {
+					t.Errorf("feature %#x repeated", p.Feature)
+				}
+				seen[p.Feature] = true
+				fA, fB := p.Feature>>16, p.Feature&0xffff
+				for _, h := range []struct {
+					f, id uint32
+					ref   bool
+				}{{fA, tc.idA, tc.refIsA}, {fB, tc.idB, !tc.refIsA}} {
+					if h.f&flatTag == 0 || h.f&0x4000 != 0 {
+						t.Errorf("feature %#x: half %#x lacks the flat tag", p.Feature, h.f)
+					}
+					if got := h.f >> flatIDShift & 15; got != h.id {
+						t.Errorf("feature %#x: half %#x has id %d, want %d", p.Feature, h.f, got, h.id)
+					}
+					if (h.f&flatRef != 0) != h.ref {
+						t.Errorf("feature %#x: half %#x: reference bit %v, want %v", p.Feature, h.f, h.f&flatRef != 0, h.ref)
+					}
+					if h.ref && h.f&0xff != 0 {
+						t.Errorf("feature %#x: reference half %#x carries a clipped vertex", p.Feature, h.f)
+					}
+				}
+			}
+		})
+	}
+}
