@@ -246,3 +246,29 @@ func TestTunePusherFinalPose(t *testing.T) {
 		t.Errorf("final carton position error %.4g m → %.4g m: reduced %.2f×, want at least 5×", before, after, before/after)
 	}
 }
+
+func TestTuneIndependentOfWorkers(t *testing.T) {
+	p := pendulumProblem(t)
+	p.Uncertain = []string{"mass:arm"}
+	p.Draws = []ParamDraw{{0.8}, {1}, {1.3}, {1.1}, {0.9}}
+	var got [][]float64
+	for _, w := range []int{1, 2, 5} {
+		tu, err := NewTuner(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		tu.Workers = w
+		res, err := tu.Tune(TuneSettings{Iterations: 5})
+		if err != nil {
+			t.Fatal(err)
+		}
+		got = append(got, append(res.Tuned, res.After.Mean))
+	}
+	for i := 1; i < len(got); i++ {
+		for j := range got[0] {
+			if got[i][j] != got[0][j] {
+				t.Errorf("workers change the result: %v vs %v", got[i], got[0])
+			}
+		}
+	}
+}
