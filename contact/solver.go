@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -64,6 +65,11 @@ type SolveStats struct {
 	// Regularized counts the factorizations that needed a diagonal shift
 	// because the Newton matrix was numerically singular.
 	Regularized int
+	// Factorizations counts the n×n LU factorizations, the bulk of the
+	// cost: one per interior-point iteration, more in the fallbacks, and
+	// one per polishing attempt (one per Newton step with sliding
+	// contacts).
+	Factorizations int
 	// Restarts counts the restarts of the interior-point iteration from a
 	// new starting point after it stalled.
 	Restarts int
@@ -102,6 +108,7 @@ type Solver struct {
 	kappa       float64
 	aho         bool // direction: Newton on ξ∘η (true) or Nesterov–Todd (false)
 	regularized int  // factorizations regularized in the current iteration
+	factors     int  // factorizations in the current solve
 
 	wd   []float64 // W as a full row-major n×n matrix
 	b    []float64
@@ -118,6 +125,7 @@ type Solver struct {
 	dlamK, dyK, dbetaK []float64 // best candidate direction
 	lamP, uP, fP       []float64 // polished point, its velocity and mode residual
 	kind, kindB        []int8    // per row: equation of the polishing system, and a saved copy
+	kindA, kindP       []int8    // modes at the last polishing attempt and at the previous iteration
 	lamB, yB, betaB    []float64 // best iterate so far
 	rhs                []float64
 	wq0                []float64 // per contact: (Ws q)_0, needed for dβ
@@ -168,8 +176,10 @@ func (s *Solver) resize(n, nc int) {
 	if cap(s.kind) < n {
 		s.kind = make([]int8, n)
 		s.kindB = make([]int8, n)
+		s.kindA = make([]int8, n)
+		s.kindP = make([]int8, n)
 	}
-	s.kind, s.kindB = s.kind[:n], s.kindB[:n]
+	s.kind, s.kindB, s.kindA, s.kindP = s.kind[:n], s.kindB[:n], s.kindA[:n], s.kindP[:n]
 	if cap(s.piv) < n {
 		s.piv = make([]int, n)
 		s.jpiv = make([]int, n)
@@ -344,6 +354,10 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 		s.solved = true
 		return stats, nil
 	}
+	s.factors = 0
+	for i := range s.kindA {
+		s.kindA[i], s.kindP[i] = -1, -1 // no attempt yet
+	}
 	s.initialPoint(1, 1)
 	lastPolish := math.Inf(1)              // stopping residual at the last polishing attempt
 	progress, progressIt := math.Inf(1), 0 // for stall detection
@@ -352,6 +366,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 	for it := 0; ; it++ {
 		natural, velocity, relaxed, gap := s.evaluate()
 		stats.Iterations, stats.Complementarity, stats.Gap = it, natural, gap
+		stats.Factorizations = s.factors
 		stats.VelocityResidual = velocity
 		// With κ = 0 the interior-point pairs themselves must also be
 		// complementary (relaxed residual at target 0), so that the final
@@ -378,12 +393,23 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			copy(s.yB, s.y)
 			copy(s.betaB, s.beta)
 		}
-		// Polish once close, and again whenever the iterate has come
-		// another two orders of magnitude closer.
-		if s.kappa == 0 && current <= polishStart && current <= 0.01*lastPolish {
-			lastPolish = current
-			if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, polishRounds); ok {
-				return s.finishPolished(set, &stats, lambda, nat, vel)
+		// Polish as soon as the iterate is roughly converged, then whenever
+		// the modes read off it change and have held for two iterations
+		// (an attempt costs about one iteration and usually saves several),
+		// and once close whenever the iterate has come another two orders
+		// of magnitude closer.
+		if s.kappa == 0 && current <= polishEarly {
+			s.classify()
+			stable := slices.Equal(s.kind, s.kindP) || math.IsInf(lastPolish, 1)
+			copy(s.kindP, s.kind)
+			if (stable && !slices.Equal(s.kind, s.kindA)) || (current <= polishStart && current <= 0.01*lastPolish) {
+				copy(s.kindA, s.kind)
+				lastPolish = current
+				// One active-set correction: cheap, and often all an early
+				// reading of the modes needs.
+				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, 1); ok {
+					return s.finishPolished(set, &stats, lambda, nat, vel)
+				}
 			}
 		}
 		if current < 0.5*progress {
@@ -437,6 +463,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 				}
 			}
 			copy(lambda, s.lam)
+			stats.Factorizations = s.factors
 			return stats, &SolveError{Iterations: it, Residual: stats.Residual, Tolerance: set.Tolerance,
 				VelocityResidual: stats.VelocityResidual, VelocityTolerance: set.VelocityTolerance, Reason: reason}
 		}
@@ -489,6 +516,7 @@ func (s *Solver) finishPolished(set SolverSettings, stats *SolveStats, lambda []
 	stats.Residual, stats.Complementarity, stats.VelocityResidual = nat, nat, vel
 	stats.Gap = s.exactGap(s.lamP, s.uP)
 	stats.Polished = true
+	stats.Factorizations = s.factors
 	s.centralPoint(polishCentral * set.Tolerance * s.scaleL * s.scaleU)
 	s.solved = true
 	return *stats, nil
@@ -812,6 +840,7 @@ func (s *Solver) general(data []float64) blas64.General {
 // and dλc the contact's three rows. Tangent rows of frictionless contacts
 // are replaced by dλt = 0.
 func (s *Solver) factorNewton() bool {
+	s.factors++
 	for c := range s.nc {
 		if s.mu[c] > 0 {
 			xi, eta := s.cone(c)

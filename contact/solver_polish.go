@@ -2,6 +2,7 @@ package contact
 
 import (
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -40,9 +41,14 @@ const (
 )
 
 // polishStart is the scaled stopping residual (with the velocity residual
-// brought to the same footing, see trialResidual) below which polishing is
-// tried: close enough for the modes to be read off reliably.
+// brought to the same footing, see trialResidual) below which the modes can
+// be read off reliably: polishing is then retried at every hundredfold
+// improvement even if the modes have not changed.
 const polishStart = 1e-8
+
+// polishEarly is the scaled stopping residual below which polishing is
+// tried whenever the modes read off the iterate change.
+const polishEarly = 1e-2
 
 // polishCentral is the relaxation τ of the central point placed next to
 // a polished solution for the derivatives, relative to the product scale
@@ -51,10 +57,10 @@ const polishStart = 1e-8
 const polishCentral = 1e-2
 
 // polishRounds bounds the active-set corrections of one polishing attempt.
-var polishRounds = 6
+const polishRounds = 6
 
 // polishSteps bounds the Newton steps of one polishing attempt.
-const polishSteps = 6
+const polishSteps = 10
 
 // polishEps is the relative diagonal shift ε/max W_ii of the polishing
 // Newton matrix. Each step leaves a share of about 2ε/σ of the error along
@@ -67,9 +73,8 @@ const polishEps = 1e-9
 // iterate. A pair is read as active where λ exceeds ρ y (ρ = 1/W_ii, the
 // impulse that the row's own velocity y would take back), a contact as
 // sliding where ρ β, the impulse scale of its slip, exceeds the distance
-// μλn − ‖λt‖ of its friction from the cone's boundary. It reports whether
-// any contact slides.
-func (s *Solver) classify() (sliding bool) {
+// μλn − ‖λt‖ of its friction from the cone's boundary.
+func (s *Solver) classify() {
 	for c := range s.nc {
 		i := 3 * c
 		k := &s.kind
@@ -81,7 +86,6 @@ func (s *Solver) classify() (sliding bool) {
 			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowZero, rowZero
 		case s.rowRho(i+1)*s.beta[c] > m*ln-math.Hypot(s.lam[i+1], s.lam[i+2]):
 			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowSlide, rowSlide
-			sliding = true
 		default:
 			(*k)[i], (*k)[i+1], (*k)[i+2] = rowVelocity, rowVelocity, rowVelocity
 		}
@@ -93,7 +97,6 @@ func (s *Solver) classify() (sliding bool) {
 			s.kind[i] = rowZero
 		}
 	}
-	return sliding
 }
 
 // polishResidual computes u = W λ + B at s.lamP into s.uP and the residual
@@ -133,6 +136,7 @@ func (s *Solver) polishResidual() float64 {
 // polishFactor assembles J + εI, J the Jacobian of the mode equations at
 // s.lamP (rows as in polishResidual), into s.jac and factors it.
 func (s *Solver) polishFactor() bool {
+	s.factors++
 	n := s.n
 	a := s.jac
 	lam, u := s.lamP, s.uP
@@ -180,10 +184,10 @@ func (s *Solver) polishFactor() bool {
 // success the polished impulses are in s.lamP, their velocities in s.uP,
 // and it returns their natural and velocity residuals.
 func (s *Solver) polish(tol, vtol float64, rounds int) (ok bool, natural, velocity float64) {
-	sliding := s.classify()
+	s.classify()
 	copy(s.lamP, s.lam)
 	for round := 0; ; round++ {
-		if s.polishNewton(sliding) {
+		if s.polishNewton() {
 			natural, velocity = s.naturalAt(s.lamP, s.uP)
 			if natural <= tol && velocity <= vtol {
 				return true, natural, velocity
@@ -192,8 +196,7 @@ func (s *Solver) polish(tol, vtol float64, rounds int) (ok bool, natural, veloci
 		if round >= rounds {
 			return false, natural, velocity
 		}
-		var changed bool
-		if sliding, changed = s.reclassify(s.lamP, s.uP); !changed {
+		if !s.reclassify(s.lamP, s.uP) {
 			return false, natural, velocity
 		}
 	}
@@ -203,13 +206,20 @@ func (s *Solver) polish(tol, vtol float64, rounds int) (ok bool, natural, veloci
 // s.kind from s.lamP (whose rows of kind rowZero it zeroes first). It
 // leaves the result in s.lamP and its velocity in s.uP and reports false
 // when the Jacobian could not be factored.
-func (s *Solver) polishNewton(sliding bool) bool {
+func (s *Solver) polishNewton() bool {
 	n := s.n
 	for i := range n {
 		if s.kind[i] == rowZero {
 			s.lamP[i] = 0
 		}
 	}
+	// The Jacobian is factored at the starting point and kept while it
+	// reduces the residual at least a hundredfold per step (a chord
+	// method): the equations are linear but for the slip directions of
+	// sliding contacts, which change little near a solution, and a step
+	// with a kept factorization costs two triangular solves instead of a
+	// factorization.
+	sliding := slices.Contains(s.kind, rowSlide)
 	prev := math.Inf(1)
 	factored := false
 	for step := range polishSteps {
@@ -227,13 +237,13 @@ func (s *Solver) polishNewton(sliding bool) bool {
 		if !(f > 1e-15) {
 			break // exact to rounding, or NaN (no slip direction)
 		}
-		prev = f
-		if !factored || sliding {
+		if !factored || (sliding && f > 1e-2*prev) {
 			if !s.polishFactor() {
 				return false
 			}
 			factored = true
 		}
+		prev = f
 		// Filtered step d = (J + εI)⁻¹ J (J + εI)⁻¹ F, computed as
 		// (J + εI)⁻¹ (F − ε z) with z = (J + εI)⁻¹ F: along an eigenvalue
 		// σ of J it is σ/(σ + ε)² times F, Newton's F/σ for σ ≫ ε and
@@ -267,12 +277,8 @@ func (s *Solver) polishNeighbours(tol, vtol float64) (ok bool, natural, velocity
 	s.classify()
 	copy(s.kindB, s.kind)
 	try := func() bool {
-		sliding := false
-		for c := range s.nc {
-			sliding = sliding || s.kind[3*c+1] == rowSlide
-		}
 		copy(s.lamP, s.lam)
-		if !s.polishNewton(sliding) {
+		if !s.polishNewton() {
 			return false
 		}
 		natural, velocity = s.naturalAt(s.lamP, s.uP)
@@ -316,8 +322,8 @@ func (s *Solver) polishNeighbours(tol, vtol float64) (ok bool, natural, velocity
 // of the exact conditions: x = λ − ρ ũ projected onto the Coulomb cone
 // lands inside it (sticking), at its apex (separating) or on its side
 // (sliding); a unilateral row is active where λ − ρ u > 0. It reports
-// whether any contact slides and whether any kind changed.
-func (s *Solver) reclassify(lam, u []float64) (sliding, changed bool) {
+// whether any kind changed.
+func (s *Solver) reclassify(lam, u []float64) (changed bool) {
 	set := func(i int, k0, k1, k2 int8) {
 		if s.kind[i] != k0 || s.kind[i+1] != k1 || s.kind[i+2] != k2 {
 			changed = true
@@ -340,7 +346,6 @@ func (s *Solver) reclassify(lam, u []float64) (sliding, changed bool) {
 			set(i, rowVelocity, rowVelocity, rowVelocity)
 		default:
 			set(i, rowVelocity, rowSlide, rowSlide)
-			sliding = true
 		}
 	}
 	for i := 3 * s.nc; i < s.n; i++ {
@@ -353,7 +358,7 @@ func (s *Solver) reclassify(lam, u []float64) (sliding, changed bool) {
 		}
 		s.kind[i] = k
 	}
-	return sliding, changed
+	return changed
 }
 
 // exactGap returns Σ λᵀũ over the contacts plus Σ λ u over the unilateral
