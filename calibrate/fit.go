@@ -142,8 +142,13 @@ type Calibration struct {
 	Fitted  []float64
 	// Residuals at the fitted values (whitened, data rows first).
 	Residuals []float64
+	// Nuisance counts the fitted start offsets of the windows
+	// (Options.FreeStart).
+	Nuisance int
 	// Train and HeldOut are the objectives, for plots.
 	Train, HeldOut *Objective
+	// initialFull and fittedFull include the start offsets.
+	initialFull, fittedFull []float64
 }
 
 // Fit calibrates the free parameters to the training logs: it runs one
@@ -172,12 +177,16 @@ func Fit(c *Config) (*Calibration, error) {
 			return nil, err
 		}
 	}
-	names := make([]string, len(c.Params))
-	x0 := make([]float64, len(c.Params))
+	np := len(c.Params)
+	names := make([]string, np)
+	// x0 is the full vector: the free parameters, then zero offsets of
+	// the windows' free start states.
+	x0 := make([]float64, train.NumParams())
 	for j, p := range c.Params {
 		names[j], x0[j] = p.Name, p.Initial
 	}
-	out := &Calibration{Initial: slices.Clone(x0), Train: train, HeldOut: held, Windows: train.Windows(), Rows: train.DataRows()}
+	out := &Calibration{Initial: slices.Clone(x0[:np]), initialFull: slices.Clone(x0), Train: train, HeldOut: held,
+		Windows: train.Windows(), Rows: train.DataRows(), Nuisance: train.NumParams() - np}
 	x := slices.Clone(x0)
 	stage, lambda := 0, 0.0
 	var history []TracePoint
@@ -204,7 +213,7 @@ func Fit(c *Config) (*Calibration, error) {
 	}
 	if held != nil {
 		held.Kappa = train.Kappa
-		hb, err := held.Errors(x0)
+		hb, err := held.Errors(x0[:np])
 		if err != nil {
 			return nil, fmt.Errorf("held-out logs at the initial values: %w", err)
 		}
@@ -222,10 +231,12 @@ func Fit(c *Config) (*Calibration, error) {
 					return nil
 				}
 				if it.Iter > 0 || len(history) == 0 || history[len(history)-1].Stage != stage {
-					history = append(history, TracePoint{Stage: stage, Kappa: kappa, Iter: it.Iter, Loss: it.Loss, Lambda: it.Lambda, Step: it.Step, X: slices.Clone(it.X)})
+					history = append(history, TracePoint{Stage: stage, Kappa: kappa, Iter: it.Iter, Loss: it.Loss, Lambda: it.Lambda, Step: it.Step, X: slices.Clone(it.X[:np])})
 				}
 				if c.Progress != nil {
-					c.Progress(&Progress{Stage: stage, Stages: len(opts.Smoothing), Kappa: kappa, Start: startIdx, Iteration: *it, Elapsed: elapsed()})
+					shown := *it
+					shown.X = it.X[:np]
+					c.Progress(&Progress{Stage: stage, Stages: len(opts.Smoothing), Kappa: kappa, Start: startIdx, Iteration: shown, Elapsed: elapsed()})
 				}
 				if c.Checkpoint != nil && it.Iter > 0 {
 					return c.Checkpoint(&Checkpoint{Format: CheckpointFormat, Fingerprint: c.Fingerprint, Params: names,
@@ -259,12 +270,13 @@ func Fit(c *Config) (*Calibration, error) {
 		}
 	}
 	out.History = history
-	out.Fitted = slices.Clone(x)
+	out.Fitted = slices.Clone(x[:np])
+	out.fittedFull = slices.Clone(x)
 	out.Converged = last.Status.Converged()
 	out.Residuals = last.Residuals
 	out.TrainAfter = train.summarize(last.Residuals)
 
-	scale := make([]float64, len(x))
+	scale := filled(len(x), 1) // start offsets: m, m/s, rad/s
 	for j, p := range c.Params {
 		scale[j] = typicalScale(p, x[j])
 	}
@@ -274,7 +286,7 @@ func Fit(c *Config) (*Calibration, error) {
 	}
 	out.Sigma2, out.DOF = u.Sigma2, u.DOF
 	out.SingularValues, out.Condition = u.SingularValues, u.Condition
-	n := len(x)
+	n := np
 	out.Corr = make([][]float64, n)
 	for j := range n {
 		out.Corr[j] = make([]float64, n)
@@ -287,7 +299,7 @@ func Fit(c *Config) (*Calibration, error) {
 			Lower95: u.Lower95[j], Upper95: u.Upper95[j], Lower: p.Lower, Upper: p.Upper,
 			AtBound: x[j] <= p.Lower || x[j] >= p.Upper, RelErr: u.DataRelErr[j], Class: u.Class[j]}
 		pr.Verdict = u.Class[j].String()
-		pr.Note = explain(c.Model, c.Params, j, u)
+		pr.Note = explain(c.Model, train, c.Params, j, u)
 		if pr.AtBound {
 			pr.Note += fmt.Sprintf(" The value sits on its bound; the interval assumes it could move past it, so treat it with care.")
 		}
@@ -295,7 +307,7 @@ func Fit(c *Config) (*Calibration, error) {
 	}
 	if held != nil {
 		held.Kappa = train.Kappa
-		ha, err := held.Errors(x)
+		ha, err := held.Errors(x[:np])
 		if err != nil {
 			return nil, fmt.Errorf("held-out logs at the fitted values: %w", err)
 		}
@@ -326,7 +338,7 @@ func multiStart(o *Objective, runFrom func([]float64, int, float64, bool) (*Resu
 	best, bestLoss := slices.Clone(x0), math.Inf(1)
 	starts := [][]float64{slices.Clone(x0)}
 	for range opts.Starts - 1 {
-		s := make([]float64, len(x0))
+		s := make([]float64, len(x0)) // start offsets stay zero
 		for j, p := range o.params {
 			s[j] = drawWithin(rng, p)
 		}
@@ -370,7 +382,7 @@ func drawWithin(rng *rand.Rand, p FreeParam) float64 {
 }
 
 // explain puts parameter j's identifiability into a sentence.
-func explain(m *sim.Model, params []FreeParam, j int, u *Uncertainty) string {
+func explain(m *sim.Model, o *Objective, params []FreeParam, j int, u *Uncertainty) string {
 	name := params[j].Name
 	pct := 100 * u.DataRelErr[j]
 	switch u.Class[j] {
@@ -381,7 +393,11 @@ func explain(m *sim.Model, params []FreeParam, j int, u *Uncertainty) string {
 	case Confounded:
 		var others []string
 		for _, k := range u.Partners[j] {
-			others = append(others, params[k].Name)
+			if k < len(params) {
+				others = append(others, params[k].Name)
+			} else {
+				others = append(others, "the starting state ("+o.NuisanceName(k)+")")
+			}
 		}
 		return fmt.Sprintf("%s cannot be identified separately from %s: the logs determine only a combination of them; fix one or add a prior.", name, strings.Join(others, " and "))
 	}

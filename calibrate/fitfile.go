@@ -35,6 +35,8 @@ type FitFile struct {
 	Parameters []ParamSpec `yaml:"parameters"`
 	// Window is the length of a multiple-shooting window in seconds.
 	Window float64 `yaml:"window"`
+	// FreeStart is log, velocity or state (see Options.FreeStart).
+	FreeStart string `yaml:"free_start"`
 	// Noise gives the standard deviation of each channel.
 	Noise NoiseSpec `yaml:"noise"`
 	// Smoothing is the contact-smoothing schedule κ, large to small.
@@ -282,6 +284,11 @@ func ParseFitFile(src []byte, path string) (*FitFile, error) {
 			return nil, fail(f.line[c.key], c.key, "%s", c.msg)
 		}
 	}
+	if f.FreeStart != "" {
+		if _, err := ParseFreeStart(f.FreeStart); err != nil {
+			return nil, fail(f.line["free_start"], "free_start", "%q is not one of log, velocity, state", f.FreeStart)
+		}
+	}
 	for ch, v := range f.Noise.Channels {
 		if !(v > 0) || math.IsInf(v, 0) {
 			return nil, fail(f.line["noise"], "noise.channels."+ch, "%v: must be a positive standard deviation", v)
@@ -374,7 +381,12 @@ func (f *FitFile) Reader(l LogSpec) *LogReader {
 
 // Options returns the fit options the file gives.
 func (f *FitFile) Options() Options {
+	fs, _ := ParseFreeStart(f.FreeStart)
+	if f.FreeStart == "" {
+		fs = StartFromLog
+	}
 	return Options{
+		FreeStart:  fs,
 		Window:     f.Window,
 		Noise:      Noise{Position: f.Noise.Position, Rotation: f.Noise.Rotation, Joint: f.Noise.Joint, Channels: f.Noise.Channels},
 		Smoothing:  f.Smoothing,

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"path/filepath"
 	"runtime"
 	"slices"
 	"strings"
@@ -63,9 +64,44 @@ type Options struct {
 	// (default 1: the initial values alone); Seed seeds the others.
 	Starts int
 	Seed   uint64
+	// FreeStart selects which parts of each window's starting state the
+	// fit adjusts (multiple shooting with free starting states) instead
+	// of taking them from the log: none (the default), velocities, or
+	// positions and velocities. They are nuisance parameters: fitted, used
+	// in the uncertainty of the others, but not reported one by one.
+	FreeStart FreeStart
 	// Workers is the number of windows simulated at once (default
 	// GOMAXPROCS). Results do not depend on it.
 	Workers int
+}
+
+// FreeStart selects the free parts of each window's starting state.
+type FreeStart int
+
+// The choices of FreeStart.
+const (
+	StartFromLog      FreeStart = iota // the logged (smoothed) state
+	StartVelocityFree                  // free linear velocities of free bodies and joint rates
+	StartStateFree                     // free positions (not orientations) and velocities
+)
+
+var freeStartNames = [...]string{"log", "velocity", "state"}
+
+func (f FreeStart) String() string {
+	if f < 0 || int(f) >= len(freeStartNames) {
+		return "unknown"
+	}
+	return freeStartNames[f]
+}
+
+// ParseFreeStart returns the FreeStart named s: log, velocity or state.
+func ParseFreeStart(s string) (FreeStart, error) {
+	for i, n := range freeStartNames {
+		if n == s {
+			return FreeStart(i), nil
+		}
+	}
+	return 0, fmt.Errorf("free start %q is not one of log, velocity, state", s)
 }
 
 func (o Options) withDefaults() Options {
@@ -127,6 +163,10 @@ type window struct {
 	rows  []resRow
 	off   int // first residual row
 	n     int // residual rows
+	// free are the window's nuisance parameters (start.* offsets), whose
+	// columns in the full parameter vector start at col.
+	free []sim.Param
+	col  int
 }
 
 // boundLog is a log matched to a model's bodies and joints.
@@ -155,6 +195,9 @@ type Objective struct {
 	// Kappa is the contact smoothing the next evaluations use.
 	Kappa  float64
 	joints []int // body index of each single-DOF joint, run-file order
+	// nuisance counts the windows' free start parameters, which follow
+	// the free parameters in the full parameter vector.
+	nuisance int
 }
 
 // NewObjective matches logs to the model and cuts them into windows of
@@ -186,6 +229,11 @@ func NewObjective(m *sim.Model, set sim.Settings, logs []*Log, params []FreePara
 	for _, w := range o.windows {
 		w.off = o.nData
 		o.nData += w.n
+		w.col = len(params) + o.nuisance
+		if err := o.freeStart(w, opts.FreeStart); err != nil {
+			return nil, err
+		}
+		o.nuisance += len(w.free)
 	}
 	if o.nData == 0 {
 		return nil, errors.New("the logs hold no samples to compare with the simulation")
@@ -196,6 +244,53 @@ func NewObjective(m *sim.Model, set sim.Settings, logs []*Log, params []FreePara
 		}
 	}
 	return o, nil
+}
+
+// freeStart lists the start.* parameters of window w.
+func (o *Objective) freeStart(w *window, fs FreeStart) error {
+	if fs == StartFromLog {
+		return nil
+	}
+	var names []string
+	for _, b := range o.model.Bodies {
+		if b.Joint.Kind != sim.Free {
+			continue
+		}
+		if fs == StartStateFree {
+			names = append(names, "start.x:"+b.Name, "start.y:"+b.Name, "start.z:"+b.Name)
+		}
+		// Angular velocities stay logged: a body resting on a support
+		// cannot turn into it, so their offsets are barely determined
+		// and slow the fit down without changing its result.
+		names = append(names, "start.vx:"+b.Name, "start.vy:"+b.Name, "start.vz:"+b.Name)
+	}
+	for _, bi := range o.joints {
+		j := o.model.Bodies[bi].Joint.Name
+		if fs == StartStateFree {
+			names = append(names, "start.q:"+j)
+		}
+		names = append(names, "start.qd:"+j)
+	}
+	ps, err := sim.ParseParams(o.model, names)
+	if err != nil {
+		return err
+	}
+	w.free = ps
+	return nil
+}
+
+// NumParams returns the length of the full parameter vector: the free
+// parameters, then the windows' free start offsets.
+func (o *Objective) NumParams() int { return len(o.params) + o.nuisance }
+
+// NuisanceName describes full-vector parameter k ≥ len(params).
+func (o *Objective) NuisanceName(k int) string {
+	for _, w := range o.windows {
+		if i := k - w.col; i >= 0 && i < len(w.free) {
+			return fmt.Sprintf("%s at t = %g s of %s", w.free[i].Name, w.start.T, filepath.Base(o.logs[w.log].log.File))
+		}
+	}
+	return fmt.Sprintf("parameter %d", k)
 }
 
 // bind finds the columns of each body and joint in lg.
@@ -583,10 +678,11 @@ func (o *Objective) Windows() int { return len(o.windows) }
 // Ignored returns the columns of log i that the fit does not use.
 func (o *Objective) Ignored(i int) []string { return o.logs[i].Ignored }
 
-// Problem returns the least-squares problem over the free parameters.
+// Problem returns the least-squares problem over the full parameter
+// vector; the start offsets are unbounded.
 func (o *Objective) Problem() Problem {
-	lo := make([]float64, len(o.params))
-	hi := make([]float64, len(o.params))
+	n := o.NumParams()
+	lo, hi := filled(n, math.Inf(-1)), filled(n, math.Inf(1))
 	for j, p := range o.params {
 		lo[j], hi[j] = p.Lower, p.Upper
 	}
@@ -617,9 +713,15 @@ func (o *Objective) modelAt(theta []float64) *sim.Model {
 // the Jacobian if J is not nil) into rows fixed per window, so that the
 // result is the same for any number of workers. If frames is not nil the
 // simulated frames of window w go to frames[w].
+//
+// theta holds the free parameters, optionally followed by the start
+// offsets; without them the windows start from the logged state.
 func (o *Objective) eval(r []float64, J *mat.Dense, theta []float64, frames [][]sim.Frame) error {
-	if len(theta) != len(o.params) || len(r) != o.M() {
-		return fmt.Errorf("calibrate: evaluation with %d parameters and %d rows, want %d and %d", len(theta), len(r), len(o.params), o.M())
+	if (len(theta) != len(o.params) && len(theta) != o.NumParams()) || len(r) != o.M() {
+		return fmt.Errorf("calibrate: evaluation with %d parameters and %d rows, want %d and %d", len(theta), len(r), o.NumParams(), o.M())
+	}
+	if J != nil {
+		J.Zero()
 	}
 	for j, p := range o.params {
 		if err := p.param.CheckValue(theta[j]); err != nil {
@@ -637,7 +739,7 @@ func (o *Objective) eval(r []float64, J *mat.Dense, theta []float64, frames [][]
 		go func() {
 			defer wg.Done()
 			for w := range next {
-				f, err := o.evalWindow(o.windows[w], m, set, r, J)
+				f, err := o.evalWindow(o.windows[w], m, set, theta, r, J)
 				errs[w] = err
 				if frames != nil {
 					frames[w] = f
@@ -659,16 +761,13 @@ func (o *Objective) eval(r []float64, J *mat.Dense, theta []float64, frames [][]
 		p := &o.params[j]
 		r[o.nData+i] = (theta[j] - p.PriorMean) / p.PriorSD
 		if J != nil {
-			for c := range o.params {
-				J.Set(o.nData+i, c, 0)
-			}
 			J.Set(o.nData+i, j, 1/p.PriorSD)
 		}
 	}
 	return nil
 }
 
-func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []float64, J *mat.Dense) ([]sim.Frame, error) {
+func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, theta, r []float64, J *mat.Dense) ([]sim.Frame, error) {
 	lg := o.logs[w.log].log
 	where := func(err error) error {
 		return fmt.Errorf("%s, window starting at t = %g s (line %d): %w", lg.File, w.start.T, lg.Lines[w.row0], err)
@@ -677,18 +776,34 @@ func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []fl
 	if err != nil {
 		return nil, where(err)
 	}
-	if err := s.SetFrame(&w.start); err != nil {
+	start := w.start
+	useFree := len(w.free) > 0 && len(theta) == o.NumParams()
+	if useFree {
+		start = offsetFrame(m, w, theta[w.col:w.col+len(w.free)])
+	}
+	if err := s.SetFrame(&start); err != nil {
 		return nil, where(err)
 	}
 	var params []sim.Param
+	// cols maps the sample's parameter columns to the full vector.
+	var cols []int
 	if J != nil {
 		params = o.sp
+		for j := range o.sp {
+			cols = append(cols, j)
+		}
+		if useFree {
+			params = append(slices.Clone(o.sp), w.free...)
+			for i := range w.free {
+				cols = append(cols, w.col+i)
+			}
+		}
 	}
 	smp, err := s.Sample(params, w.times)
 	if err != nil {
 		return nil, where(err)
 	}
-	np := len(o.params)
+	np := len(params)
 	row := w.off
 	for i := range w.rows {
 		rr := &w.rows[i]
@@ -700,7 +815,7 @@ func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []fl
 			r[row] = (component(p, int(rr.axis)) - rr.want) * inv
 			if J != nil {
 				for j := range np {
-					J.Set(row, j, component(smp.DPos[rr.k][rr.idx][j], int(rr.axis))*inv)
+					J.Set(row, cols[j], component(smp.DPos[rr.k][rr.idx][j], int(rr.axis))*inv)
 				}
 			}
 			row++
@@ -711,9 +826,9 @@ func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []fl
 			if J != nil {
 				for j := range np {
 					d := invLeftJacobian(phi, smp.DRot[rr.k][rr.idx][j])
-					J.Set(row, j, d.X*inv)
-					J.Set(row+1, j, d.Y*inv)
-					J.Set(row+2, j, d.Z*inv)
+					J.Set(row, cols[j], d.X*inv)
+					J.Set(row+1, cols[j], d.Y*inv)
+					J.Set(row+2, cols[j], d.Z*inv)
 				}
 			}
 			row += 3
@@ -721,13 +836,66 @@ func (o *Objective) evalWindow(w *window, m *sim.Model, set sim.Settings, r []fl
 			r[row] = (fr.Joints[rr.idx].Q - rr.want) * inv
 			if J != nil {
 				for j := range np {
-					J.Set(row, j, smp.DJoint[rr.k][rr.idx][j]*inv)
+					J.Set(row, cols[j], smp.DJoint[rr.k][rr.idx][j]*inv)
 				}
 			}
 			row++
 		}
 	}
 	return smp.Frames, nil
+}
+
+// offsetFrame returns w's starting frame with the start offsets d added.
+func offsetFrame(m *sim.Model, w *window, d []float64) sim.Frame {
+	f := w.start
+	f.Bodies = slices.Clone(f.Bodies)
+	f.Joints = slices.Clone(f.Joints)
+	jointOf := map[int]int{}
+	j := 0
+	for i, b := range m.Bodies {
+		if k := b.Joint.Kind; k == sim.Revolute || k == sim.Prismatic {
+			jointOf[i] = j
+			j++
+		}
+	}
+	for i, p := range w.free {
+		name := p.Name
+		qty, owner, _ := strings.Cut(name, ":")
+		comp := strings.TrimPrefix(qty, "start.")
+		bi := slices.IndexFunc(m.Bodies, func(b sim.Body) bool { return b.Name == owner })
+		if comp == "q" || comp == "qd" {
+			bi = slices.IndexFunc(m.Bodies, func(b sim.Body) bool { return b.Joint.Name == owner })
+			jf := &f.Joints[jointOf[bi]]
+			if comp == "q" {
+				jf.Q += d[i]
+			} else {
+				jf.QD += d[i]
+			}
+			continue
+		}
+		bf := &f.Bodies[bi]
+		switch comp {
+		case "x":
+			bf.Pose.Pos.X += d[i]
+		case "y":
+			bf.Pose.Pos.Y += d[i]
+		case "z":
+			bf.Pose.Pos.Z += d[i]
+		case "vx":
+			bf.Linear.X += d[i]
+		case "vy":
+			bf.Linear.Y += d[i]
+		case "vz":
+			bf.Linear.Z += d[i]
+		case "wx":
+			bf.Angular.X += d[i]
+		case "wy":
+			bf.Angular.Y += d[i]
+		case "wz":
+			bf.Angular.Z += d[i]
+		}
+	}
+	return f
 }
 
 func component(v r3.Vec, i int) float64 {

@@ -230,18 +230,19 @@ func (c *Calibration) ReportFiles(info ReportInfo) (map[string][]byte, error) {
 		}
 	}
 	for _, set := range []struct {
-		o     *Objective
-		label string
-		names []string
-	}{{c.Train, "train", info.Train}, {c.HeldOut, "held-out", info.HeldOut}} {
+		o      *Objective
+		label  string
+		names  []string
+		x0, x1 []float64
+	}{{c.Train, "train", info.Train, c.initialFull, c.fittedFull}, {c.HeldOut, "held-out", info.HeldOut, c.Initial, c.Fitted}} {
 		if set.o == nil {
 			continue
 		}
-		before, _, err := set.o.Simulate(c.Initial)
+		before, _, err := set.o.Simulate(set.x0)
 		if err != nil {
 			return nil, fmt.Errorf("simulating the %s logs at the initial values: %w", set.label, err)
 		}
-		after, resid, err := set.o.Simulate(c.Fitted)
+		after, resid, err := set.o.Simulate(set.x1)
 		if err != nil {
 			return nil, fmt.Errorf("simulating the %s logs at the fitted values: %w", set.label, err)
 		}

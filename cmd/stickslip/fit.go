@@ -58,6 +58,7 @@ func runFit(e *env, args []string) error {
 	window := fl.Float64("window", 0, "window length in seconds (default 0.5, or the fit file's)")
 	smoothing := fl.String("smoothing", "", "smoothing schedule κ, comma-separated, large to small (default 0, or the fit file's)")
 	iterations := fl.Int("iterations", 0, "Levenberg–Marquardt steps per smoothing stage (default 50, or the fit file's)")
+	freeStart := fl.String("free-start", "", "what each window's starting state takes from the fit rather than the log: log, velocity or state (default log, or the fit file's)")
 	workers := fl.Int("workers", 0, "windows simulated at once (default: number of cores); results do not depend on it")
 	out := fl.String("out", "", "fitted scene file to write (default fitted-<scene>.yaml)")
 	reportDir := fl.String("report", "", "report directory to write (default report-<scene>)")
@@ -88,6 +89,13 @@ func runFit(e *env, args []string) error {
 		return err
 	}
 	job.opts.Workers = *workers
+	if *freeStart != "" {
+		fs, err := calibrate.ParseFreeStart(*freeStart)
+		if err != nil {
+			return badInputf("--free-start: %v", err)
+		}
+		job.opts.FreeStart = fs
+	}
 	for _, w := range job.scene.Warnings {
 		fmt.Fprintf(e.stderr, "warning: %s\n", w)
 	}
