@@ -102,6 +102,9 @@ func checkSweepFrom(t *testing.T, m *Model, set Settings, names []string, from f
 		if den == 0 && num == 0 {
 			continue
 		}
+		if testing.Verbose() {
+			t.Logf("%s: sweep %.6g fd %.6g", p.Name, want, jac)
+		}
 		if rel := num / math.Max(den, 1e-12); !(rel <= tol) {
 			t.Errorf("%s: sweep vs central differences: relative error %.3g > %.0e (‖fd‖ = %.4g)", p.Name, rel, tol, den)
 		}
@@ -208,7 +211,13 @@ func TestSweepStack(t *testing.T) {
 
 func TestSweepPusherCell(t *testing.T) {
 	// Mid-push window: the fore link drives the carton across the table.
-	checkSweepFrom(t, pusherCell(), Settings{}, []string{"kp:shoulder", "kd:elbow", "friction:card/steel", "mass:carton", "mass:fore"},
+	// The link presses the carton's side with a four-point manifold and the
+	// carton rests on four more: the Delassus operator is rank deficient,
+	// so at κ = 0 the impulses (not the motion) are not unique and neither
+	// is their derivative. A small κ picks the central solution, smoothly;
+	// the sweep then equals central differences of the same smoothed model.
+	set := Settings{Solver: contact.SolverSettings{Smoothing: 1e-6}}
+	checkSweepFrom(t, pusherCell(), set, []string{"kp:shoulder", "kd:elbow", "friction:card/steel", "mass:carton", "mass:fore"},
 		0.8, []float64{0.85, 0.9}, 1e-5)
 }
 
