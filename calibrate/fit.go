@@ -133,10 +133,12 @@ type Calibration struct {
 	TrainAfter    ErrorSummary
 	HeldOutBefore *ErrorSummary
 	HeldOutAfter  *ErrorSummary
-	Windows       int
-	Rows          int
-	Evaluations   int
-	Elapsed       float64
+	// Warnings are problems that did not stop the fit.
+	Warnings    []string
+	Windows     int
+	Rows        int
+	Evaluations int
+	Elapsed     float64
 	// Initial and Fitted are the parameter vectors.
 	Initial []float64
 	Fitted  []float64
@@ -208,14 +210,18 @@ func Fit(c *Config) (*Calibration, error) {
 
 	// The "before" errors use the exact contact model.
 	train.Kappa = opts.Smoothing[len(opts.Smoothing)-1]
+	// A simulation that fails at the initial values is worth a warning,
+	// not the end of the fit: the smoothed stages may still get past it.
 	if out.TrainBefore, err = train.Errors(x0); err != nil {
-		return nil, fmt.Errorf("at the initial values: %w", err)
+		out.TrainBefore = nanSummary()
+		out.Warnings = append(out.Warnings, fmt.Sprintf("training logs at the initial values: %v", err))
 	}
 	if held != nil {
 		held.Kappa = train.Kappa
 		hb, err := held.Errors(x0[:np])
 		if err != nil {
-			return nil, fmt.Errorf("held-out logs at the initial values: %w", err)
+			hb = nanSummary()
+			out.Warnings = append(out.Warnings, fmt.Sprintf("held-out logs at the initial values: %v", err))
 		}
 		out.HeldOutBefore = &hb
 	}
@@ -257,7 +263,11 @@ func Fit(c *Config) (*Calibration, error) {
 			out.Evaluations += res.Evaluations + res.JacEvaluations
 		}
 		if err != nil {
-			return nil, fmt.Errorf("stage %d (κ = %g): %w", stage+1, kappa, err)
+			hint := ""
+			if kappa == 0 {
+				hint = " (exact contact: a schedule ending at a small positive smoothing, such as 1e-7, avoids solves that do not converge)"
+			}
+			return nil, fmt.Errorf("stage %d (κ = %g)%s: %w", stage+1, kappa, hint, err)
 		}
 		copy(x, res.X)
 		out.Stages = append(out.Stages, StageResult{Kappa: kappa, Status: res.Status.String(), Iterations: res.Iterations, Loss: res.Loss})
@@ -309,12 +319,18 @@ func Fit(c *Config) (*Calibration, error) {
 		held.Kappa = train.Kappa
 		ha, err := held.Errors(x[:np])
 		if err != nil {
-			return nil, fmt.Errorf("held-out logs at the fitted values: %w", err)
+			ha = nanSummary()
+			out.Warnings = append(out.Warnings, fmt.Sprintf("held-out logs at the fitted values: %v", err))
 		}
 		out.HeldOutAfter = &ha
 	}
 	out.Elapsed = elapsed().Seconds()
 	return out, nil
+}
+
+func nanSummary() ErrorSummary {
+	n := math.NaN()
+	return ErrorSummary{Loss: n, RMS: n, Position: n, Rotation: n, Joint: n}
 }
 
 // typicalScale is the magnitude relative errors refer to.

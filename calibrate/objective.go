@@ -55,8 +55,11 @@ type Options struct {
 	Window float64
 	Noise  Noise
 	// Smoothing is the schedule of contact smoothing κ
-	// (sim.Settings.Solver.Smoothing), one Levenberg–Marquardt stage per
-	// value, large to small (default [0]: exact contact).
+	// (sim.Settings.Solver.Smoothing, N·s·m/s), one Levenberg–Marquardt
+	// stage per value, large to small (default DefaultSmoothing). Early
+	// stages give gradients through stick/slip and touch-down; the last
+	// value sets the bias the smoothing leaves (0 is exact contact, which
+	// the solver does not reach in every scene).
 	Smoothing []float64
 	// Iterations bounds the steps per stage (default 50).
 	Iterations int
@@ -110,7 +113,7 @@ func (o Options) withDefaults() Options {
 	}
 	o.Noise = o.Noise.withDefaults()
 	if len(o.Smoothing) == 0 {
-		o.Smoothing = []float64{0}
+		o.Smoothing = DefaultSmoothing
 	}
 	if o.Iterations == 0 {
 		o.Iterations = 50
@@ -123,6 +126,9 @@ func (o Options) withDefaults() Options {
 	}
 	return o
 }
+
+// DefaultSmoothing is the smoothing schedule of Options' zero value.
+var DefaultSmoothing = []float64{1e-5, 1e-7}
 
 // Channel kinds of residual rows.
 const (

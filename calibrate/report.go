@@ -89,6 +89,7 @@ type jsonReport struct {
 	Window         float64       `json:"window_s"`
 	Smoothing      []float64     `json:"smoothing"`
 	Converged      bool          `json:"converged"`
+	Warnings       []string      `json:"warnings"`
 	Params         []jsonParam   `json:"parameters"`
 	Correlations   [][]num       `json:"correlations"`
 	SingularValues []num         `json:"singular_values"`
@@ -113,7 +114,7 @@ func (c *Calibration) JSON(info ReportInfo, plots []string) ([]byte, error) {
 	opts := info.Options.withDefaults()
 	r := jsonReport{Format: ReportFormat, Scene: info.Scene, FittedScene: info.FittedScene,
 		Train: nonNil(info.Train), HeldOut: nonNil(info.HeldOut), Window: opts.Window, Smoothing: opts.Smoothing,
-		Converged: c.Converged, SingularValues: nums(c.SingularValues), Condition: num(c.Condition),
+		Converged: c.Converged, Warnings: nonNil(c.Warnings), SingularValues: nums(c.SingularValues), Condition: num(c.Condition),
 		Sigma2: num(c.Sigma2), DOF: c.DOF, Windows: c.Windows, Rows: c.Rows, Evaluations: c.Evaluations,
 		Stages: c.Stages, TrainBefore: jsonErr(&c.TrainBefore), TrainAfter: jsonErr(&c.TrainAfter),
 		HeldOutBefore: jsonErr(c.HeldOutBefore), HeldOutAfter: jsonErr(c.HeldOutAfter), History: c.History, Plots: nonNil(plots)}
@@ -240,7 +241,7 @@ func (c *Calibration) ReportFiles(info ReportInfo) (map[string][]byte, error) {
 		}
 		before, _, err := set.o.Simulate(set.x0)
 		if err != nil {
-			return nil, fmt.Errorf("simulating the %s logs at the initial values: %w", set.label, err)
+			before = nil // drawn without the "before" curves
 		}
 		after, resid, err := set.o.Simulate(set.x1)
 		if err != nil {
@@ -503,6 +504,7 @@ th{background:#eef}td.l,th.l{text-align:left}.bad{color:#a00}.weak{color:#a60}im
 <p>Training logs: {{range .Info.Train}}<code>{{.}}</code> {{end}}<br>
 Held-out logs: {{range .Info.HeldOut}}<code>{{.}}</code> {{else}}none{{end}}<br>
 {{.C.Windows}} windows of {{.Opts.Window}} s, {{.C.Rows}} residual rows; smoothing schedule κ = {{range $i, $k := .Opts.Smoothing}}{{if $i}} → {{end}}{{$k}}{{end}}.
+{{range .C.Warnings}}<p class="weak">Warning: {{.}}</p>{{end}}
 {{if .C.Converged}}The fit converged.{{else}}<span class="bad">The fit did not meet a convergence test; see the stages below.</span>{{end}}</p>
 <h2>Parameters</h2>
 <table><tr><th class="l">parameter</th><th>initial</th><th>fitted</th><th>standard error</th><th>95 % interval</th><th class="l">identifiability</th></tr>

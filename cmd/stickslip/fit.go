@@ -164,6 +164,9 @@ func runFit(e *env, args []string) error {
 		}
 		return err
 	}
+	for _, w := range cal.Warnings {
+		fmt.Fprintf(e.stderr, "warning: %s\n", w)
+	}
 	fitted := sim.CopyModel(job.scene.Model)
 	for j, p := range job.params {
 		pp := p.Param()
