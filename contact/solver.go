@@ -296,17 +296,21 @@ func (s *Solver) load(p *Problem, nlam int) error {
 //
 // # Polishing
 //
-// With κ = 0, once the iterate is within 1e-8 (scaled) of a solution, the
-// mode of each contact (separating, sticking, sliding) and of each
-// unilateral row (active or not) is read off it and the equations of those
-// modes are solved by Newton's method (see solver_polish.go). The polished
-// impulses are returned, with SolveStats.Polished set, only if they meet
-// both tolerances on the exact conditions; otherwise the interior-point
-// iteration continues. This finishes in one or two factorizations what
-// the interior-point method would need several increasingly ill-conditioned
-// iterations for, or could not reach at all. The iterate that the
-// derivatives linearize about is then moved to the central point of
-// relaxation 1e-2·Tolerance·sλ·su next to the polished solution.
+// With κ = 0 the iteration is finished by polishing (see
+// solver_polish.go): the mode of each contact (separating, sticking,
+// sliding) and of each unilateral row (active or not) is read off the
+// iterate and the equations of those modes are solved by Newton's method.
+// The polished impulses are returned, with SolveStats.Polished set, only
+// if they meet both tolerances on the exact conditions; otherwise the
+// interior-point iteration continues. Polishing is tried once the scaled
+// residual is below 1e-2, again whenever the modes read off the iterate
+// change and hold for two iterations, and below 1e-8 at every hundredfold
+// improvement. It finishes in one or two factorizations what the
+// interior-point method would need several increasingly ill-conditioned
+// iterations for, or could not reach at all; a resting stack is typically
+// solved after one iteration. The iterate that the derivatives linearize
+// about is then moved to an interior point next to the polished solution,
+// with each pair relaxed by a relative 1e-10 (see centralPoint).
 //
 // # Smoothing
 //
@@ -517,7 +521,7 @@ func (s *Solver) finishPolished(set SolverSettings, stats *SolveStats, lambda []
 	stats.Gap = s.exactGap(s.lamP, s.uP)
 	stats.Polished = true
 	stats.Factorizations = s.factors
-	s.centralPoint(polishCentral * set.Tolerance * s.scaleL * s.scaleU)
+	s.centralPoint(polishDelta)
 	s.solved = true
 	return *stats, nil
 }

@@ -50,11 +50,15 @@ const polishStart = 1e-8
 // tried whenever the modes read off the iterate change.
 const polishEarly = 1e-2
 
-// polishCentral is the relaxation τ of the central point placed next to
-// a polished solution for the derivatives, relative to the product scale
-// Tolerance·sλ·su: a hundredth of what an unpolished converged iterate may
-// have.
-const polishCentral = 1e-2
+// polishDelta is the relative complementarity of the interior point
+// placed next to a polished solution for the derivatives (see
+// centralPoint): small enough for the smoothing it adds to be negligible,
+// large enough for the barrier terms (up to W_ii/delta) to keep the
+// Newton matrix well conditioned. Measured against finite differences
+// (TestPolishedDerivativeFiniteDifferences and the sim sweeps), 1e-8
+// leaves a smoothing error of up to 5e-5 and 1e-12 rounding errors above
+// 1e-6; 1e-10 keeps both below 1e-6.
+const polishDelta = 1e-10
 
 // polishRounds bounds the active-set corrections of one polishing attempt.
 const polishRounds = 6
@@ -375,27 +379,31 @@ func (s *Solver) exactGap(lam, u []float64) float64 {
 	return gap
 }
 
-// centralPoint replaces the interior-point iterate (λ, y, β) by a point of
-// the central path of target tau next to the polished solution (s.lamP,
-// s.uP): every pair keeps the polished value of its larger member and gets
-// tau divided by it for the smaller one (λ y = tau; for the cone pairs the
-// same per eigenvalue in a shared Jordan frame, so ξ∘η = tau e exactly).
-// The derivatives, which linearize the relaxed conditions at the iterate,
-// then see the polished modes with complementarity relaxed to tau only, as
-// if the interior-point iteration had converged that far.
-func (s *Solver) centralPoint(tau float64) {
+// centralPoint replaces the interior-point iterate (λ, y, β) by an
+// interior point next to the polished solution (s.lamP, s.uP) at relative
+// complementarity delta: every pair keeps the polished value of its larger
+// member and gets delta times it (converted by ρ = 1/W_ii between impulse
+// and velocity units) for the smaller one; for the cone pairs the same per
+// eigenvalue in a shared Jordan frame, so that ξ∘η is a multiple of the
+// identity along each eigendirection. The derivatives, which linearize the
+// relaxed conditions at the iterate, then see the polished modes with every
+// barrier term a fraction delta (or 1/delta) of the contact's own W_ii:
+// the same relative smoothing for large and small impulses, which a
+// common target κ cannot give.
+func (s *Solver) centralPoint(delta float64) {
 	lp, up := s.lamP, s.uP
+	scale := math.Sqrt(delta) * s.scaleL
 	for c := range s.nc {
 		i := 3 * c
 		m := s.mu[c]
+		rho := s.rowRho(i)
 		if m == 0 {
-			s.lam[i], s.y[i] = centralPair(lp[i], up[i], s.rowRho(i), tau)
+			s.lam[i], s.y[i] = centralPair(lp[i], up[i], rho, delta, scale)
 			s.lam[i+1], s.lam[i+2] = 0, 0
 			s.y[i+1], s.y[i+2] = up[i+1], up[i+2]
 			s.beta[c] = math.Hypot(up[i+1], up[i+2])
 			continue
 		}
-		rho := s.rowRho(i)
 		nlt, nut := math.Hypot(lp[i+1], lp[i+2]), math.Hypot(up[i+1], up[i+2])
 		// β of the exact solution: ‖ut‖ where the contact pushes; where it
 		// separates any bound on ‖ut‖ will do, and un keeps the cone pair
@@ -417,33 +425,34 @@ func (s *Solver) centralPoint(tau float64) {
 		eta1 := up[i+1]*v[0] + up[i+2]*v[1]
 		var a, b [2]float64
 		for k, sg := range [2]float64{1, -1} {
-			a[k], b[k] = centralPair(math.Max(xi0+sg*xi1, 0), math.Max(beta+sg*eta1, 0), rho, tau)
+			a[k], b[k] = centralPair(math.Max(xi0+sg*xi1, 0), math.Max(beta+sg*eta1, 0), rho, delta, scale)
 		}
 		xi0, xi1 = (a[0]+a[1])/2, (a[0]-a[1])/2
 		eta0, eta1 := (b[0]+b[1])/2, (b[0]-b[1])/2
 		s.lam[i], s.lam[i+1], s.lam[i+2] = xi0/m, xi1*v[0], xi1*v[1]
 		s.beta[c], s.y[i+1], s.y[i+2] = eta0, eta1*v[0], eta1*v[1]
 		if s.kind[i] == rowZero {
-			s.y[i] = math.Max(up[i], tau/s.lam[i])
+			s.y[i] = math.Max(up[i], s.lam[i]/(delta*rho))
 		} else {
-			s.y[i] = tau / s.lam[i]
+			s.y[i] = delta * s.lam[i] / rho
 		}
 	}
 	for i := 3 * s.nc; i < s.n; i++ {
-		s.lam[i], s.y[i] = centralPair(lp[i], up[i], s.rowRho(i), tau)
+		s.lam[i], s.y[i] = centralPair(lp[i], up[i], s.rowRho(i), delta, scale)
 	}
 }
 
-// centralPair returns the pair (l, y) with l y = tau next to an exact
+// centralPair returns the interior pair (l, y) next to an exact
 // complementary pair (l0, y0): the member that is larger, compared in
-// impulse units (ρ y0 against l0), is kept. A pair with both members zero
-// (weakly active) becomes (√(τρ), √(τ/ρ)).
-func centralPair(l0, y0, rho, tau float64) (l, y float64) {
+// impulse units (ρ y0 against l0), is kept, and the other is delta times
+// it, so that y/l is delta/ρ (active) or 1/(delta ρ) (inactive). A pair
+// with both members zero (weakly active) becomes (scale, scale/ρ).
+func centralPair(l0, y0, rho, delta, scale float64) (l, y float64) {
 	switch {
 	case l0 <= 0 && y0 <= 0:
-		return math.Sqrt(tau * rho), math.Sqrt(tau / rho)
+		return scale, scale / rho
 	case l0 >= rho*y0:
-		return l0, tau / l0
+		return l0, delta * l0 / rho
 	}
-	return tau / y0, y0
+	return delta * rho * y0, y0
 }

@@ -2,7 +2,10 @@ package contact
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
+
+	"gonum.org/v1/gonum/diff/fd"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -84,4 +87,103 @@ func TestPolishSlidingBoxOnIncline(t *testing.T) {
 		t.Errorf("friction impulse %.12g, want μ λn = %.12g", sumT, mu*sumN)
 	}
 	t.Logf("iterations %d, polished %v, residual %.2g, velocity residual %.2g", st.Iterations, st.Polished, st.Residual, st.VelocityResidual)
+}
+
+func TestPolishedDerivativeFiniteDifferences(t *testing.T) {
+	// The JVP and VJP at polished solutions (κ = 0) against central finite
+	// differences (gonum diff/fd) of λ(B, μ), on random problems with a
+	// positive definite W (unique solution) whose solution is strictly
+	// complementary, so that it is a smooth function of the data nearby:
+	// there the exact derivative is the derivative of the modes' equations,
+	// and the interior-point linearization at the central point next to
+	// the polished solution must reproduce it.
+	rng := rand.New(rand.NewPCG(61, 62))
+	checked := 0
+	for trial := 0; checked < 10 && trial < 200; trial++ {
+		nc, nu := 1+rng.IntN(4), rng.IntN(3)
+		p := randomProblem(rng, nc, nu, 0, 0.8)
+		n := len(p.B)
+		s := NewSolver()
+		lam := make([]float64, n)
+		st, err := s.Solve(p, SolverSettings{}, lam)
+		if err != nil || !st.Polished || margin(p, lam) < 1e-3 {
+			continue
+		}
+		checked++
+		fs := NewSolver()
+		f := func(y, x []float64) {
+			q := &Problem{W: p.W, B: x[:n], Mu: x[n:], NumCones: nc}
+			if _, err := fs.Solve(q, SolverSettings{}, y); err != nil {
+				t.Fatal(err)
+			}
+		}
+		x := append(append([]float64(nil), p.B...), p.Mu...)
+		jfd := mat.NewDense(n, len(x), nil)
+		fd.Jacobian(jfd, f, x, &fd.JacobianSettings{Formula: fd.Central, Step: 1e-6})
+		dl := make([]float64, n)
+		for j := range x {
+			db, dmu := make([]float64, n), make([]float64, nc)
+			if j < n {
+				db[j] = 1
+			} else {
+				dmu[j-n] = 1
+			}
+			if err := s.JVP(dl, db, dmu); err != nil {
+				t.Fatal(err)
+			}
+			for i := range n {
+				if want := jfd.At(i, j); math.Abs(dl[i]-want) > 1e-6*(1+math.Abs(want)) {
+					t.Errorf("trial %d: JVP dλ%d/dx%d = %.9g, finite differences %.9g", trial, i, j, dl[i], want)
+				}
+			}
+		}
+		bBar, muBar := make([]float64, n), make([]float64, nc)
+		for i := range n {
+			lb := make([]float64, n)
+			lb[i] = 1
+			if err := s.VJP(bBar, muBar, lb); err != nil {
+				t.Fatal(err)
+			}
+			for j := range x {
+				got := muBar[max(j-n, 0)]
+				if j < n {
+					got = bBar[j]
+				}
+				if want := jfd.At(i, j); math.Abs(got-want) > 1e-6*(1+math.Abs(want)) {
+					t.Errorf("trial %d: VJP dλ%d/dx%d = %.9g, finite differences %.9g", trial, i, j, got, want)
+				}
+			}
+		}
+	}
+	if checked < 10 {
+		t.Fatalf("only %d strictly complementary polished solutions among the trials", checked)
+	}
+}
+
+// margin returns how far the solution lam of p is from a change of mode:
+// the smallest of λn or un (whichever should be positive), μλn − ‖λt‖ of
+// sticking contacts, ‖ut‖ of sliding ones, and λ or u of unilateral rows.
+func margin(p *Problem, lam []float64) float64 {
+	u := velocityOf(p, lam)
+	m := math.Inf(1)
+	for c := range p.NumCones {
+		i := 3 * c
+		if lam[i] == 0 {
+			m = math.Min(m, u[i])
+			continue
+		}
+		m = math.Min(m, lam[i])
+		if p.Mu[c] > 0 {
+			ut := math.Hypot(u[i+1], u[i+2])
+			if ut < 1e-12 {
+				m = math.Min(m, p.Mu[c]*lam[i]-math.Hypot(lam[i+1], lam[i+2]))
+			} else {
+				m = math.Min(m, ut)
+			}
+		}
+	}
+	for i := 3 * p.NumCones; i < len(lam); i++ {
+		m = math.Min(m, math.Max(lam[i], u[i]))
+	}
+	return m
 }
