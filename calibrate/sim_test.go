@@ -1,8 +1,11 @@
 package calibrate
 
 import (
+	"encoding/json"
+	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"strings"
 	"testing"
 
@@ -131,5 +134,124 @@ func TestIdentifiabilityPushedMass(t *testing.T) {
 		if d := math.Abs(p.Value - want); d > 2*p.StdErr+1e-9 && d > 0.02*want {
 			t.Errorf("%s = %g ± %g, truth %g", p.Name, p.Value, p.StdErr, want)
 		}
+	}
+}
+
+// pushedCrate returns the crate-push scene with a force that steps from
+// 60 N to 90 N at 0.3–0.35 s, and a log of it simulated with the true
+// parameters (μ = 0.4, m = 10 kg) plus 0.5 mm of position noise.
+func pushedCrate(t *testing.T) (*sim.Model, sim.Settings, *Log) {
+	t.Helper()
+	sc, err := scenarios.LoadBuiltin("crate-push")
+	if err != nil {
+		t.Fatal(err)
+	}
+	truth := sim.CopyModel(sc.Model)
+	truth.Loads[0].Schedule = []sim.LoadKey{{T: 0, Force: r3x(60)}, {T: 0.3, Force: r3x(60)}, {T: 0.35, Force: r3x(90)}}
+	set := sc.Settings
+	set.Duration = 0.6
+	run, err := sim.Rollout(truth, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return sim.CopyModel(truth), sc.Settings, runLog(t, run, 10, 5e-4, 0, 1)
+}
+
+func TestFitWorkersAndResume(t *testing.T) {
+	m, set, lg := pushedCrate(t)
+	run := func(workers int, resume *Checkpoint, stopAfter int) (*Calibration, *Checkpoint, error) {
+		params := freeParams(t, m, "friction:pine/tile", "mass:crate")
+		params[0].Initial, params[1].Initial = 0.3, 7
+		var last *Checkpoint
+		n := 0
+		res, err := Fit(&Config{Model: m, Settings: set, Train: []*Log{lg}, Params: params, Fingerprint: "test",
+			Options: Options{Window: 0.2, Workers: workers}, Resume: resume,
+			Checkpoint: func(c *Checkpoint) error {
+				last = c
+				if n++; stopAfter > 0 && n >= stopAfter {
+					return errors.New("interrupted")
+				}
+				return nil
+			}})
+		return res, last, err
+	}
+	one, _, err := run(1, nil, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	two, _, err := run(2, nil, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The result does not depend on the number of workers, to the bit.
+	for j := range one.Fitted {
+		if one.Fitted[j] != two.Fitted[j] || one.Params[j].StdErr != two.Params[j].StdErr {
+			t.Errorf("parameter %d: 1 worker %v ± %v, 2 workers %v ± %v", j, one.Fitted[j], one.Params[j].StdErr, two.Fitted[j], two.Params[j].StdErr)
+		}
+	}
+	// Interrupted after three steps and resumed, the fit ends where the
+	// uninterrupted one did (to the convergence tolerance: the resumed run
+	// restarts Marquardt's scaling) and keeps the history.
+	_, cp, err := run(2, nil, 3)
+	if err == nil || cp == nil {
+		t.Fatalf("interrupted fit: error %v, checkpoint %v", err, cp)
+	}
+	data, _ := json.Marshal(cp)
+	cp2, err := ReadCheckpoint(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	resumed, _, err := run(2, cp2, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j := range one.Fitted {
+		if d := math.Abs(resumed.Fitted[j] - one.Fitted[j]); d > 1e-6*math.Abs(one.Fitted[j]) {
+			t.Errorf("parameter %d: resumed %v, uninterrupted %v", j, resumed.Fitted[j], one.Fitted[j])
+		}
+	}
+	if len(resumed.History) <= len(cp.History) || resumed.History[0].Loss != one.History[0].Loss {
+		t.Errorf("resumed history has %d steps, checkpoint %d", len(resumed.History), len(cp.History))
+	}
+	bad := *cp2
+	bad.Fingerprint = "other"
+	if _, _, err := run(1, &bad, 0); err == nil || !strings.Contains(err.Error(), "different fit") {
+		t.Errorf("checkpoint of another fit: error %v", err)
+	}
+}
+
+func TestFitBasin(t *testing.T) {
+	if testing.Short() {
+		t.Skip("20 fits")
+	}
+	// From 20 random starts over μ ∈ [0.05, 1.5] and mass ∈ [0.3, 3] × the
+	// truth, the smoothed fit must reach the truth (block pushed by a
+	// known force, REFERENCE-CHECKS.md; log simulated with μ = 0.4,
+	// m = 10 kg) at least 19 times. Starts with large μ and mass stick:
+	// only the smoothing gives them a gradient.
+	m, set, lg := pushedCrate(t)
+	rng := rand.New(rand.NewPCG(11, 12))
+	good := 0
+	for i := range 20 {
+		mu := 0.05 + rng.Float64()*(1.5-0.05)
+		mass := 10 * math.Exp(math.Log(0.3)+rng.Float64()*(math.Log(3)-math.Log(0.3)))
+		params := freeParams(t, m, "friction:pine/tile", "mass:crate")
+		params[0].Initial, params[0].Lower, params[0].Upper = mu, 0.01, 3
+		params[1].Initial, params[1].Lower, params[1].Upper = mass, 1, 100
+		res, err := Fit(&Config{Model: m, Settings: set, Train: []*Log{lg}, Params: params,
+			Options: Options{Window: 0.2, Smoothing: []float64{1e-3, 1e-4, 1e-5, 1e-7}, Iterations: 30}})
+		if err != nil {
+			t.Logf("start %d (μ %.3f, m %.2f): %v", i, mu, mass, err)
+			continue
+		}
+		f := res.Fitted
+		ok := math.Abs(f[0]-0.4) < 0.02*0.4 && math.Abs(f[1]-10) < 0.02*10
+		if ok {
+			good++
+		}
+		t.Logf("start %2d: μ %.3f, m %5.2f → μ %.4f, m %.3f %v", i, mu, mass, f[0], f[1], ok)
+	}
+	if good < 19 {
+		t.Errorf("%d of 20 starts reached the truth, want at least 19", good)
 	}
 }
