@@ -1,6 +1,10 @@
 package contact
 
-import "math"
+import (
+	"math"
+
+	"gonum.org/v1/gonum/blas/blas64"
+)
 
 // Second-order cone algebra for the interior-point solver.
 //
@@ -156,4 +160,53 @@ func arwCoupling(x, s soc3) [3][3]float64 {
 		h[0][j], h[1][j], h[2][j] = z[0], z[1], z[2]
 	}
 	return h
+}
+
+// luSolve overwrites b with the solution of A x = b, where lu and piv hold
+// the LU factorization of the row-major n×n matrix A computed by
+// lapack64.Getrf. It is lapack64.Getrs for one right-hand side, written as
+// row-wise dot products: Getrs goes through a triangular solve for a
+// matrix of right-hand sides, which for a single one costs several times
+// the arithmetic, and the solves are a large share of each iteration.
+func luSolve(lu []float64, n int, piv []int, b []float64) {
+	for i, p := range piv[:n] {
+		if p != i {
+			b[i], b[p] = b[p], b[i]
+		}
+	}
+	// L has a unit diagonal.
+	for i := 1; i < n; i++ {
+		b[i] -= dot(lu[i*n:i*n+i], b[:i])
+	}
+	for i := n - 1; i >= 0; i-- {
+		row := lu[i*n : (i+1)*n]
+		b[i] = (b[i] - dot(row[i+1:], b[i+1:n])) / row[i]
+	}
+}
+
+// dot returns xᵀy for len(x) = len(y).
+func dot(x, y []float64) float64 {
+	return blas64.Dot(blas64.Vector{N: len(x), Inc: 1, Data: x}, blas64.Vector{N: len(x), Inc: 1, Data: y})
+}
+
+// cholSolve overwrites b with the solution of A x = b, where the upper
+// triangle of the row-major m×m slice u holds the Cholesky factor U of
+// A = UᵀU computed by lapack64.Potrf (the single right-hand side
+// counterpart of lapack64.Potrs, as luSolve is of Getrs).
+func cholSolve(u []float64, m int, b []float64) {
+	// Uᵀ z = b, by columns of Uᵀ, which are the contiguous rows of U.
+	for i := range m {
+		row := u[i*m : (i+1)*m]
+		b[i] /= row[i]
+		if zi := b[i]; zi != 0 {
+			for j := i + 1; j < m; j++ {
+				b[j] -= zi * row[j]
+			}
+		}
+	}
+	// U x = z.
+	for i := m - 1; i >= 0; i-- {
+		row := u[i*m : (i+1)*m]
+		b[i] = (b[i] - dot(row[i+1:], b[i+1:m])) / row[i]
+	}
 }

@@ -4,6 +4,10 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // randomInteriorSOC returns a random point of the interior of L.
@@ -108,6 +112,55 @@ func TestProjectCoulomb(t *testing.T) {
 			gen := soc3{1, mu * math.Cos(phi), mu * math.Sin(phi)}
 			if d := r[0]*gen[0] + r[1]*gen[1] + r[2]*gen[2]; d > 1e-12 {
 				t.Fatalf("trial %d: x − p not in the polar cone", trial)
+			}
+		}
+	}
+}
+
+func TestTriangularSolves(t *testing.T) {
+	// luSolve and cholSolve against gonum's Getrs and Potrs (reference
+	// implementations of the same factorizations) on random systems.
+	rng := rand.New(rand.NewPCG(12, 13))
+	for _, n := range []int{1, 2, 7, 40} {
+		a := make([]float64, n*n)
+		for i := range a {
+			a[i] = rng.NormFloat64()
+		}
+		b := make([]float64, n)
+		for i := range b {
+			b[i] = rng.NormFloat64()
+		}
+		lu := append([]float64(nil), a...)
+		piv := make([]int, n)
+		lapack64.Getrf(blas64.General{Rows: n, Cols: n, Stride: n, Data: lu}, piv)
+		want := append([]float64(nil), b...)
+		lapack64.Getrs(blas.NoTrans, blas64.General{Rows: n, Cols: n, Stride: n, Data: lu}, blas64.General{Rows: n, Cols: 1, Stride: 1, Data: want}, piv)
+		got := append([]float64(nil), b...)
+		luSolve(lu, n, piv, got)
+		for i := range n {
+			if math.Abs(got[i]-want[i]) > 1e-12*(1+math.Abs(want[i])) {
+				t.Errorf("n=%d: luSolve x%d = %g, Getrs %g", n, i, got[i], want[i])
+			}
+		}
+		// A Aᵀ + I is symmetric positive definite.
+		spd := make([]float64, n*n)
+		for i := range n {
+			for j := range n {
+				spd[i*n+j] = dot(a[i*n:(i+1)*n], a[j*n:(j+1)*n])
+			}
+			spd[i*n+i]++
+		}
+		tri, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: n, Stride: n, Data: spd})
+		if !ok {
+			t.Fatalf("n=%d: not positive definite", n)
+		}
+		want = append(want[:0], b...)
+		lapack64.Potrs(tri, blas64.General{Rows: n, Cols: 1, Stride: 1, Data: want})
+		got = append(got[:0], b...)
+		cholSolve(spd, n, got)
+		for i := range n {
+			if math.Abs(got[i]-want[i]) > 1e-12*(1+math.Abs(want[i])) {
+				t.Errorf("n=%d: cholSolve x%d = %g, Potrs %g", n, i, got[i], want[i])
 			}
 		}
 	}

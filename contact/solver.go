@@ -964,7 +964,7 @@ func (s *Solver) direction(tau float64, corr bool, dlam, dy, dbeta []float64) {
 		rhs[i] = s.rp[i] + rc/s.lam[i]
 	}
 	copy(dlam, rhs)
-	lapack64.Getrs(blas.NoTrans, s.general(s.m), blas64.General{Rows: n, Cols: 1, Stride: 1, Data: dlam}, s.piv)
+	luSolve(s.m, n, s.piv, dlam)
 	// dy from the feasibility equation keeps y − W λ − B exactly linear.
 	for i := range n {
 		dy[i] = -s.rp[i]

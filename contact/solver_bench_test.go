@@ -46,3 +46,9 @@ func BenchmarkSolve40ContactsDense(b *testing.B) {
 	rng := rand.New(rand.NewPCG(21, 22))
 	benchmarkSolve(b, randomProblem(rng, 40, 0, 0, 0.5))
 }
+
+// BenchmarkSolve40ContactsStackResting: the same stack at rest (every
+// contact sticking), the steady state of a simulated stack.
+func BenchmarkSolve40ContactsStackResting(b *testing.B) {
+	benchmarkSolve(b, stackProblem(rigidBox{m: 0.8, a: 0.05, b: 0.05, c: 0.03}, 10, 0.5, 1e-3, 0))
+}

@@ -108,7 +108,7 @@ func (s *Solver) JVP(dLambda, dB, dMu []float64) error {
 			}
 		}
 	}
-	lapack64.Getrs(blas.NoTrans, s.general(s.jac), blas64.General{Rows: s.n, Cols: 1, Stride: 1, Data: dLambda}, s.jpiv)
+	luSolve(s.jac, s.n, s.jpiv, dLambda)
 	return nil
 }
 

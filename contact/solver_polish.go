@@ -224,6 +224,9 @@ func (s *Solver) polishNewton() bool {
 	// with a kept factorization costs two triangular solves instead of a
 	// factorization.
 	sliding := slices.Contains(s.kind, rowSlide)
+	if !sliding {
+		return s.polishLinear()
+	}
 	prev := math.Inf(1)
 	factored := false
 	for step := range polishSteps {
@@ -255,13 +258,12 @@ func (s *Solver) polishNewton() bool {
 		// contacts whose offsets B disagree by rounding) is left as a
 		// residual instead of being amplified by 1/ε.
 		copy(s.rhs, s.fP)
-		rhs := blas64.General{Rows: n, Cols: 1, Stride: 1, Data: s.rhs}
-		lapack64.Getrs(blas.NoTrans, s.general(s.jac), rhs, s.jpiv)
+		luSolve(s.jac, n, s.jpiv, s.rhs)
 		eps := polishEps / s.rho
 		for i := range n {
 			s.rhs[i] = s.fP[i] - eps*s.rhs[i]
 		}
-		lapack64.Getrs(blas.NoTrans, s.general(s.jac), rhs, s.jpiv)
+		luSolve(s.jac, n, s.jpiv, s.rhs)
 		for i := range n {
 			if s.kind[i] == rowZero {
 				continue // stays exactly zero
@@ -320,6 +322,75 @@ func (s *Solver) polishNeighbours(tol, vtol float64) (ok bool, natural, velocity
 		}
 	}
 	return false, natural, velocity
+}
+
+// polishLinear is polishNewton for modes without sliding contacts. The
+// equations are then linear, λ = 0 on the rows of kind rowZero and
+// (W λ + B)_A = 0 on the others (the set A), so the step solves the
+// symmetric positive definite system W_AA + εI of the rows in A alone, by
+// Cholesky: half the work of the general factorization, on fewer rows.
+func (s *Solver) polishLinear() bool {
+	n := s.n
+	idx := s.jpiv[:0]
+	for i := range n {
+		if s.kind[i] == rowZero {
+			s.lamP[i] = 0
+		} else {
+			idx = append(idx, i)
+		}
+	}
+	m := len(idx)
+	if m == 0 {
+		s.velocityAt(s.lamP, s.uP)
+		return true
+	}
+	a := s.jac[:m*m]
+	eps := polishEps / s.rho
+	for r, i := range idx {
+		wi := s.wd[i*n : (i+1)*n]
+		row := a[r*m : (r+1)*m]
+		for c, j := range idx {
+			row[c] = wi[j]
+		}
+		row[r] += eps
+	}
+	s.factors++
+	if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: m, Stride: m, Data: a}); !ok {
+		return false
+	}
+	prev := math.Inf(1)
+	for step := range polishSteps {
+		s.velocityAt(s.lamP, s.uP)
+		f := 0.0
+		for _, i := range idx {
+			f = math.Max(f, math.Abs(s.uP[i]))
+		}
+		f /= s.scaleU
+		if !(f < prev) && step > 0 {
+			for r, i := range idx {
+				s.lamP[i] += s.rhs[r]
+			}
+			break
+		}
+		if !(f > 1e-15) {
+			break
+		}
+		prev = f
+		// The filtered step of polishNewton.
+		for r, i := range idx {
+			s.rhs[r] = s.uP[i]
+		}
+		cholSolve(a, m, s.rhs)
+		for r, i := range idx {
+			s.rhs[r] = s.uP[i] - eps*s.rhs[r]
+		}
+		cholSolve(a, m, s.rhs)
+		for r, i := range idx {
+			s.lamP[i] -= s.rhs[r]
+		}
+	}
+	s.velocityAt(s.lamP, s.uP)
+	return true
 }
 
 // reclassify sets the row kinds from the point (lam, u) by the natural map
