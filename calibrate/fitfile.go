@@ -370,9 +370,9 @@ func (f *FitFile) LogPath(l LogSpec) string {
 }
 
 // Reader returns the log reader for l: the shared column mapping followed
-// by the log's own.
+// by the log's own, with lines starting with # as comments.
 func (f *FitFile) Reader(l LogSpec) *LogReader {
-	r := &LogReader{}
+	r := &LogReader{Comment: '#'}
 	for _, c := range append(slices.Clone(f.Columns), l.Columns...) {
 		r.Columns = append(r.Columns, ColumnMap{From: c.From, To: c.To, Unit: c.Unit, Scale: c.Scale})
 	}

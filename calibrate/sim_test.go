@@ -4,11 +4,13 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io/fs"
 	"math"
 	"math/rand/v2"
 	"strings"
 	"testing"
 
+	"stickslip/calibrate/demodata"
 	"stickslip/scenarios"
 	"stickslip/sim"
 )
@@ -254,4 +256,61 @@ func TestFitBasin(t *testing.T) {
 	if good < 19 {
 		t.Errorf("%d of 20 starts reached the truth, want at least 19", good)
 	}
+}
+
+func TestDemoRecovery(t *testing.T) {
+	if testing.Short() {
+		t.Skip("fits the demo's two logs of the pusher cell")
+	}
+	// The demo logs were simulated with friction 0.42 and carton mass
+	// 1.3 kg plus sensor noise (demodata/generate). Each identifiable
+	// parameter must come back within 2 standard errors and 2 % of them.
+	src, err := fs.ReadFile(demodata.FS(), demodata.FitFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ff, err := ParseFitFile(src, demodata.FitFile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sc, err := scenarios.LoadBuiltin(ff.Scene)
+	if err != nil {
+		t.Fatal(err)
+	}
+	params, err := ff.Resolve(sc.Model)
+	if err != nil {
+		t.Fatal(err)
+	}
+	read := func(specs []LogSpec) []*Log {
+		var out []*Log
+		for _, l := range specs {
+			f, err := demodata.FS().Open(l.File)
+			if err != nil {
+				t.Fatal(err)
+			}
+			lg, err := ff.Reader(l).Read(f, l.File)
+			f.Close()
+			if err != nil {
+				t.Fatal(err)
+			}
+			out = append(out, lg)
+		}
+		return out
+	}
+	res, err := Fit(&Config{Model: sc.Model, Settings: sc.Settings, Train: read(ff.Train), HeldOut: read(ff.HeldOut), Params: params, Options: ff.Options()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, want := range []float64{0.42, 1.3} {
+		p := res.Params[i]
+		t.Logf("%s = %.5g ± %.2g (truth %g): %s", p.Name, p.Value, p.StdErr, want, p.Verdict)
+		if d := math.Abs(p.Value - want); d > 2*p.StdErr || d > 0.02*want || p.Class != Identified {
+			t.Errorf("%s = %g ± %g (%v), truth %g", p.Name, p.Value, p.StdErr, p.Class, want)
+		}
+	}
+	// The held-out push is predicted better after the fit.
+	if !(res.HeldOutAfter.Position < res.HeldOutBefore.Position) {
+		t.Errorf("held-out position error %g m before, %g m after", res.HeldOutBefore.Position, res.HeldOutAfter.Position)
+	}
+	t.Logf("residual variance %.3g; held-out position RMS %.3g → %.3g mm", res.Sigma2, 1e3*res.HeldOutBefore.Position, 1e3*res.HeldOutAfter.Position)
 }

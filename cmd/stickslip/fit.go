@@ -372,7 +372,7 @@ func fitJobFromFlags(scene string, logs, held, params, bounds, sets []string) (*
 				return nil, badInput(err)
 			}
 			h.Write(data)
-			lg, err := (&calibrate.LogReader{}).Read(strings.NewReader(string(data)), p)
+			lg, err := (&calibrate.LogReader{Comment: '#'}).Read(strings.NewReader(string(data)), p)
 			if err != nil {
 				return nil, badInput(err)
 			}
