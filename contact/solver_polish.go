@@ -9,7 +9,7 @@ import (
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
-// Polishing: once the interior-point iterate is close to a solution, the
+// Polishing: once the interior-point iterate is roughly converged, the
 // mode of every contact can be read off it, and the exact conditions of
 // those modes are a square system of equations in λ alone,
 //
@@ -29,9 +29,14 @@ import (
 //
 // With redundant contacts (singular W) the system is singular: its
 // solutions form an affine set. The Newton steps are regularized (see
-// polish) so that they leave the components of λ that W does not see as
-// the interior-point iterate had them: the distribution of impulses among
-// redundant contacts is the interior-point one.
+// polishNewton) so that they leave the components of λ that W does not see
+// as the interior-point iterate had them when polishing succeeded: the
+// distribution of impulses among redundant contacts is that of an early
+// iterate, a smooth function of the problem data as long as the iteration
+// count does not change, but not the analytic centre of the solution set
+// that the iteration would converge to. (With friction the velocities can
+// depend on that distribution too; the exact problem does not determine
+// them.)
 
 // Row kinds of the polishing system.
 const (
