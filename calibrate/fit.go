@@ -311,7 +311,7 @@ func Fit(c *Config) (*Calibration, error) {
 		pr.Verdict = u.Class[j].String()
 		pr.Note = explain(c.Model, train, c.Params, j, u)
 		if pr.AtBound {
-			pr.Note += fmt.Sprintf(" The value sits on its bound; the interval assumes it could move past it, so treat it with care.")
+			pr.Note += " The value sits on its bound; the interval assumes it could move past it, so treat it with care."
 		}
 		out.Params = append(out.Params, pr)
 	}
