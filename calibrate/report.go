@@ -30,6 +30,16 @@ type ReportInfo struct {
 	Train       []string
 	HeldOut     []string
 	Options     Options
+	// Snapshots are pictures of key contact events (rendered by the
+	// caller, which can reach the viewer), shown in their own section.
+	Snapshots []ReportImage
+}
+
+// ReportImage is a PNG picture for the report, with its caption.
+type ReportImage struct {
+	File    string // file name inside the report directory
+	Caption string
+	PNG     []byte
 }
 
 // num is a JSON number that writes null when not finite.
@@ -261,6 +271,12 @@ func (c *Calibration) ReportFiles(info ReportInfo) (map[string][]byte, error) {
 				return nil, err
 			}
 		}
+	}
+	for _, im := range info.Snapshots {
+		if im.File == "" || strings.ContainsAny(im.File, `/\`) || files[im.File] != nil {
+			return nil, fmt.Errorf("snapshot file name %q is empty, has a path or is taken", im.File)
+		}
+		files[im.File] = im.PNG
 	}
 	j, err := c.JSON(info, plots)
 	if err != nil {
@@ -526,7 +542,9 @@ Singular values of the column-scaled Jacobian: {{range .C.SingularValues}}{{g .}
 {{range .C.Stages}}<tr><td>{{.Kappa}}</td><td class="l">{{.Status}}</td><td>{{.Iterations}}</td><td>{{g .Loss}}</td></tr>{{end}}</table>
 <h2>Plots</h2>
 {{range .Plots}}<p><img src="{{.}}" alt="{{.}}"></p>
-{{end}}
+{{end}}{{if .Info.Snapshots}}<h2>Contact events in the fitted model</h2>
+{{range .Info.Snapshots}}<figure><img src="{{.File}}" alt="{{.Caption}}"><figcaption>{{.Caption}}</figcaption></figure>
+{{end}}{{end}}
 </body></html>
 `))
 

@@ -340,7 +340,7 @@ func TestSolverFailureIsAStepError(t *testing.T) {
 	// DESIGN.md, Bad input: no convergence is an error naming the step,
 	// the contacts and the residual, never a silent state.
 	m := stackScene(3)
-	s := mustSim(t, m, Settings{Solver: contact.SolverSettings{MaxIterations: 1}})
+	s := mustSim(t, m, Settings{Solver: contact.SolverSettings{MaxIterations: 1, Tolerance: 1e-300, VelocityTolerance: 1e-300}})
 	err := s.Step()
 	var se *StepError
 	if !errors.As(err, &se) {

@@ -185,7 +185,8 @@ func runFit(e *env, args []string) error {
 	if err := writeFileAtomic(*out, src); err != nil {
 		return err
 	}
-	info := calibrate.ReportInfo{Scene: job.sceneArg, FittedScene: *out, Train: job.trainN, HeldOut: job.heldN, Options: job.opts}
+	info := calibrate.ReportInfo{Scene: job.sceneArg, FittedScene: *out, Train: job.trainN, HeldOut: job.heldN, Options: job.opts,
+		Snapshots: eventSnapshots(e, fitted, job.scene.Settings.WithDefaults(), *quiet || *jsonOut)}
 	if err := cal.WriteReport(*reportDir, info); err != nil {
 		return fmt.Errorf("writing the report: %w", err)
 	}
