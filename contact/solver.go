@@ -147,7 +147,10 @@ type Solver struct {
 	jac      []float64
 	jpiv     []int
 	jacReady bool
-	solved   bool
+	// dtheta and dwork are the parameter-space and equation-space
+	// workspaces of JVP and VJP.
+	dtheta, dwork []float64
+	solved        bool
 }
 
 // NewSolver returns a solver with empty workspaces.

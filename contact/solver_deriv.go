@@ -3,6 +3,8 @@ package contact
 import (
 	"fmt"
 
+	"stickslip/implicit"
+
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/lapack/lapack64"
@@ -77,9 +79,10 @@ func (s *Solver) checkLen(name string, v []float64, n int, optional bool) error 
 }
 
 // JVP writes into dLambda the directional derivative of the last solution λ
-// along a perturbation (dB, dMu) of the problem: dλ = −(W + K)⁻¹(dB + M dμ).
-// dMu may be nil (no change of friction). A perturbation dW of W enters as
-// dB = dW λ.
+// along a perturbation (dB, dMu) of the problem: dλ = −(W + K)⁻¹(dB + M dμ)
+// (package implicit, with F_z = W + K factored once per solve and
+// F_θ(dB, dμ) = dB + M dμ). dMu may be nil (no change of friction). A
+// perturbation dW of W enters as dB = dW λ.
 func (s *Solver) JVP(dLambda, dB, dMu []float64) error {
 	if err := s.factorJacobian(); err != nil {
 		return err
@@ -93,29 +96,22 @@ func (s *Solver) JVP(dLambda, dB, dMu []float64) error {
 	if err := s.checkLen("dMu", dMu, s.nc, true); err != nil {
 		return err
 	}
-	for i := range s.n {
-		dLambda[i] = -dB[i]
-	}
+	s.dtheta = grow(s.dtheta, s.n+s.nc)
+	copy(s.dtheta, dB)
 	for c := range s.nc {
-		i := 3 * c
-		if s.mu[c] == 0 {
-			dLambda[i+1], dLambda[i+2] = 0, 0
-			continue
-		}
+		s.dtheta[s.n+c] = 0
 		if dMu != nil {
-			for r := 1; r < 3; r++ {
-				dLambda[i+r] -= s.lam[i] * s.hx[c][r][0] * dMu[c]
-			}
+			s.dtheta[s.n+c] = dMu[c]
 		}
 	}
-	luSolve(s.jac, s.n, s.jpiv, dLambda)
-	return nil
+	s.dwork = grow(s.dwork, s.n)
+	return implicit.JVP(jacFactor{s}, paramOp{s}, dLambda, s.dtheta, s.dwork)
 }
 
 // VJP writes into bBar and muBar the gradients of the scalar ⟨lambdaBar, λ⟩
 // with respect to B and μ: B̄ = −(W + K)⁻ᵀ λ̄ and μ̄_c = B̄_tᵀ λn
-// [Arw(ξ)⁻¹Arw(η)]_{t,0}. muBar may be nil. The gradient with respect to W is
-// B̄ λᵀ. lambdaBar is left unchanged.
+// [Arw(ξ)⁻¹Arw(η)]_{t,0} (package implicit). muBar may be nil. The gradient
+// with respect to W is B̄ λᵀ. lambdaBar is left unchanged.
 func (s *Solver) VJP(bBar, muBar, lambdaBar []float64) error {
 	if err := s.factorJacobian(); err != nil {
 		return err
@@ -129,26 +125,72 @@ func (s *Solver) VJP(bBar, muBar, lambdaBar []float64) error {
 	if err := s.checkLen("muBar", muBar, s.nc, true); err != nil {
 		return err
 	}
-	copy(bBar, lambdaBar)
-	lapack64.Getrs(blas.Trans, s.general(s.jac), blas64.General{Rows: s.n, Cols: 1, Stride: 1, Data: bBar}, s.jpiv)
-	for i := range bBar {
-		bBar[i] = -bBar[i]
+	s.dtheta = grow(s.dtheta, s.n+s.nc)
+	s.dwork = grow(s.dwork, s.n)
+	if err := implicit.VJP(jacFactor{s}, paramOp{s}, s.dtheta, lambdaBar, s.dwork); err != nil {
+		return err
 	}
-	for c := range s.nc {
-		i := 3 * c
-		if muBar != nil {
-			muBar[c] = 0
-		}
-		if s.mu[c] == 0 {
-			// These rows read dλt = 0: B_t does not enter.
-			bBar[i+1], bBar[i+2] = 0, 0
-			continue
-		}
-		if muBar != nil {
-			muBar[c] = s.lam[i] * (bBar[i+1]*s.hx[c][1][0] + bBar[i+2]*s.hx[c][2][0])
-		}
+	copy(bBar, s.dtheta[:s.n])
+	if muBar != nil {
+		copy(muBar, s.dtheta[s.n:])
 	}
 	return nil
+}
+
+// jacFactor presents the factored reduced Jacobian W + K as the F_z of
+// package implicit.
+type jacFactor struct{ s *Solver }
+
+func (f jacFactor) Size() int { return f.s.n }
+
+func (f jacFactor) SolveTo(dst, b []float64) error {
+	copy(dst, b)
+	luSolve(f.s.jac, f.s.n, f.s.jpiv, dst)
+	return nil
+}
+
+func (f jacFactor) SolveTransTo(dst, b []float64) error {
+	copy(dst, b)
+	lapack64.Getrs(blas.Trans, f.s.general(f.s.jac), blas64.General{Rows: f.s.n, Cols: 1, Stride: 1, Data: dst}, f.s.jpiv)
+	return nil
+}
+
+// paramOp is F_θ for the parameters θ = (B, μ): F_θ(dB, dμ) = dB + M dμ,
+// where M dμ lives on the tangent rows of contact c: λn [Arw(ξ)⁻¹Arw(η)]_{t,0}
+// dμ_c. Frictionless contacts keep λt = 0, so their tangent rows read
+// nothing.
+type paramOp struct{ s *Solver }
+
+func (o paramOp) Dims() (n, p int) { return o.s.n, o.s.n + o.s.nc }
+
+func (o paramOp) ApplyTo(dst, dTheta []float64) {
+	s := o.s
+	copy(dst, dTheta[:s.n])
+	for c := range s.nc {
+		i := 3 * c
+		if s.mu[c] == 0 {
+			dst[i+1], dst[i+2] = 0, 0
+			continue
+		}
+		dmu := dTheta[s.n+c]
+		for r := 1; r < 3; r++ {
+			dst[i+r] += s.lam[i] * s.hx[c][r][0] * dmu
+		}
+	}
+}
+
+func (o paramOp) ApplyTransTo(dst, w []float64) {
+	s := o.s
+	copy(dst, w[:s.n])
+	for c := range s.nc {
+		i := 3 * c
+		dst[s.n+c] = 0
+		if s.mu[c] == 0 {
+			dst[i+1], dst[i+2] = 0, 0
+			continue
+		}
+		dst[s.n+c] = s.lam[i] * (w[i+1]*s.hx[c][1][0] + w[i+2]*s.hx[c][2][0])
+	}
 }
 
 // ReducedJacobian writes the reduced Jacobian W + K of the optimality
