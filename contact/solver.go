@@ -429,7 +429,6 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			// read off the stalled iterate, then start again from a
 			// differently balanced point, whose path may avoid the fold.
 			if s.kappa == 0 && !math.IsNaN(current) && current < lastPolish {
-				lastPolish = current
 				if ok, nat, vel := s.polish(set.Tolerance, set.VelocityTolerance, polishRounds); ok {
 					return s.finishPolished(set, &stats, lambda, nat, vel)
 				}
@@ -494,7 +493,7 @@ func (s *Solver) Solve(p *Problem, set SolverSettings, lambda []float64) (SolveS
 			}
 			if a := s.centre(gap); a > 0 {
 				if r := s.trialResidual(a); better(r, a, best, bestAlpha, current) {
-					best, bestAlpha = r, a
+					bestAlpha = a
 					s.keepCandidate()
 				}
 			}
