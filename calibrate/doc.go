@@ -19,6 +19,10 @@
 //   - Uncertainty turns the Jacobian at the optimum into standard errors,
 //     95 % intervals, correlations and plain-language identifiability.
 //   - Report writes the result as JSON, HTML and PNG plots.
+//   - Tuner, after a fit, tunes controller gains (TuneProblem, TuneFile) by
+//     projected gradient descent on a task cost averaged over parameter
+//     samples drawn from the fit's covariance, with exact gradients from
+//     sim.Trace; its results carry the safety caution SafetyCaution.
 //
 // Conventions, stated once:
 //
