@@ -7,7 +7,6 @@ import (
 	"html/template"
 	"image/color"
 	"math"
-	"os"
 	"path/filepath"
 	"sort"
 	"strings"
@@ -155,64 +154,11 @@ func nonNil(s []string) []string {
 // replaces dir when complete. An existing dir is replaced only if it is
 // empty or holds a report.json.
 func (c *Calibration) WriteReport(dir string, info ReportInfo) error {
-	dir = filepath.Clean(dir)
-	if err := checkReportDir(dir); err != nil {
-		return err
-	}
 	files, err := c.ReportFiles(info)
 	if err != nil {
 		return err
 	}
-	parent := filepath.Dir(dir)
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
-	if err != nil {
-		return err
-	}
-	defer os.RemoveAll(tmp)
-	names := make([]string, 0, len(files))
-	for n := range files {
-		names = append(names, n)
-	}
-	sort.Strings(names)
-	for _, n := range names {
-		if err := os.WriteFile(filepath.Join(tmp, n), files[n], 0o644); err != nil {
-			return err
-		}
-	}
-	if err := os.Chmod(tmp, 0o755); err != nil {
-		return err
-	}
-	old := ""
-	if _, err := os.Stat(dir); err == nil {
-		old = tmp + ".old"
-		if err := os.Rename(dir, old); err != nil {
-			return err
-		}
-	}
-	if err := os.Rename(tmp, dir); err != nil {
-		if old != "" {
-			os.Rename(old, dir)
-		}
-		return err
-	}
-	if old != "" {
-		return os.RemoveAll(old)
-	}
-	return nil
-}
-
-func checkReportDir(dir string) error {
-	entries, err := os.ReadDir(dir)
-	if err != nil || len(entries) == 0 {
-		return nil
-	}
-	if _, err := os.Stat(filepath.Join(dir, "report.json")); err != nil {
-		return fmt.Errorf("%s: exists and is not a report directory (no report.json); refusing to replace it", dir)
-	}
-	return nil
+	return sim.WriteDir(dir, "report.json", files)
 }
 
 // ReportFiles renders the report: file name → contents.

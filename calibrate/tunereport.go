@@ -7,9 +7,7 @@ import (
 	"html/template"
 	"image/color"
 	"math"
-	"os"
-	"path/filepath"
-	"sort"
+	"stickslip/sim"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -307,53 +305,9 @@ th{background:#eef}td.l,th.l{text-align:left}img{max-width:100%}
 // a hidden sibling directory that replaces dir when complete. An existing
 // dir is replaced only if it is empty or holds a report.json.
 func (r *TuneResult) WriteReport(t *Tuner, dir string, info TuneReportInfo) error {
-	dir = filepath.Clean(dir)
-	if entries, err := os.ReadDir(dir); err == nil && len(entries) > 0 {
-		if _, err := os.Stat(filepath.Join(dir, "report.json")); err != nil {
-			return fmt.Errorf("%s: exists and is not a report directory (no report.json); refusing to replace it", dir)
-		}
-	}
 	files, err := r.ReportFiles(t, info)
 	if err != nil {
 		return err
 	}
-	parent := filepath.Dir(dir)
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
-	if err != nil {
-		return err
-	}
-	defer os.RemoveAll(tmp)
-	names := make([]string, 0, len(files))
-	for n := range files {
-		names = append(names, n)
-	}
-	sort.Strings(names)
-	for _, n := range names {
-		if err := os.WriteFile(filepath.Join(tmp, n), files[n], 0o644); err != nil {
-			return err
-		}
-	}
-	if err := os.Chmod(tmp, 0o755); err != nil {
-		return err
-	}
-	old := ""
-	if _, err := os.Stat(dir); err == nil {
-		old = tmp + ".old"
-		if err := os.Rename(dir, old); err != nil {
-			return err
-		}
-	}
-	if err := os.Rename(tmp, dir); err != nil {
-		if old != "" {
-			os.Rename(old, dir)
-		}
-		return err
-	}
-	if old != "" {
-		return os.RemoveAll(old)
-	}
-	return nil
+	return sim.WriteDir(dir, "report.json", files)
 }

@@ -11,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"sort"
 	"strconv"
 	"strings"
 
@@ -225,25 +226,9 @@ func (r *Run) WriteContacts(w io.Writer) error {
 	return cw.Error()
 }
 
-// Write stores the run in directory dir, atomically: the files are written to
-// a temporary sibling directory that then replaces dir. An existing dir is
-// replaced only if it is empty or itself a run directory, so that a mistyped
-// path never destroys unrelated files.
+// Write stores the run in directory dir, atomically (see WriteDir, with
+// run.json as the marker of a run directory).
 func (r *Run) Write(dir string) error {
-	dir = filepath.Clean(dir)
-	if err := checkReplaceable(dir); err != nil {
-		return err
-	}
-	parent := filepath.Dir(dir)
-	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
-	if err != nil {
-		return err
-	}
-	defer os.RemoveAll(tmp)
-
 	var states, contacts bytes.Buffer
 	if err := r.WriteStates(&states); err != nil {
 		return err
@@ -265,17 +250,40 @@ func (r *Run) Write(dir string) error {
 	if err != nil {
 		return err
 	}
-	files := []struct {
-		name string
-		data []byte
-	}{
-		{RunStatesFile, states.Bytes()},
-		{RunContactsFile, contacts.Bytes()},
-		{RunSceneFile, r.Scene},
-		{RunManifestFile, append(man, '\n')},
+	return WriteDir(dir, RunManifestFile, map[string][]byte{
+		RunStatesFile:   states.Bytes(),
+		RunContactsFile: contacts.Bytes(),
+		RunSceneFile:    r.Scene,
+		RunManifestFile: append(man, '\n'),
+	})
+}
+
+// WriteDir writes files (name → contents) as the directory dir,
+// atomically: they are written to a hidden sibling directory that then
+// replaces dir, so readers never see a half-written directory. An existing
+// dir is replaced only if it is empty or holds the file marker, so that a
+// mistyped path never destroys unrelated files.
+func WriteDir(dir, marker string, files map[string][]byte) error {
+	dir = filepath.Clean(dir)
+	if err := checkReplaceable(dir, marker); err != nil {
+		return err
 	}
-	for _, f := range files {
-		if err := os.WriteFile(filepath.Join(tmp, f.name), f.data, 0o644); err != nil {
+	parent := filepath.Dir(dir)
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return err
+	}
+	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
+	if err != nil {
+		return err
+	}
+	defer os.RemoveAll(tmp)
+	names := make([]string, 0, len(files))
+	for n := range files {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		if err := os.WriteFile(filepath.Join(tmp, n), files[n], 0o644); err != nil {
 			return err
 		}
 	}
@@ -292,7 +300,7 @@ func nonNil(s []string) []string {
 	return s
 }
 
-func checkReplaceable(dir string) error {
+func checkReplaceable(dir, marker string) error {
 	entries, err := os.ReadDir(dir)
 	if errors.Is(err, os.ErrNotExist) {
 		return nil
@@ -303,8 +311,8 @@ func checkReplaceable(dir string) error {
 	if len(entries) == 0 {
 		return nil
 	}
-	if _, err := os.Stat(filepath.Join(dir, RunManifestFile)); err != nil {
-		return fmt.Errorf("%s: exists and is not a run directory (no %s); refusing to replace it", dir, RunManifestFile)
+	if _, err := os.Stat(filepath.Join(dir, marker)); err != nil {
+		return fmt.Errorf("%s: exists and is not a directory this command wrote (no %s); refusing to replace it", dir, marker)
 	}
 	return nil
 }

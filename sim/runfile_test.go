@@ -72,7 +72,7 @@ func TestRunWriteRefusesForeignDirectory(t *testing.T) {
 		t.Fatal(err)
 	}
 	err := bounceRun(t).Write(dir)
-	if err == nil || !strings.Contains(err.Error(), "not a run directory") {
+	if err == nil || !strings.Contains(err.Error(), "refusing to replace it") {
 		t.Fatalf("got %v, want a refusal to replace a non-run directory", err)
 	}
 	if b, _ := os.ReadFile(keep); string(b) != "mine" {
