@@ -192,8 +192,11 @@ func ParseParams(m *Model, names []string) ([]Param, error) {
 }
 
 // pdOf returns the model's PD controller, directly or inside a Sum.
-func pdOf(m *Model) (*PD, error) {
-	switch c := m.Controller.(type) {
+func pdOf(m *Model) (*PD, error) { return pdIn(m.Controller) }
+
+// pdIn returns the PD controller c is or contains.
+func pdIn(c Controller) (*PD, error) {
+	switch c := c.(type) {
 	case *PD:
 		return c, nil
 	case Sum:
@@ -313,6 +316,9 @@ func CopyModel(m *Model) *Model {
 	return &c
 }
 
+// copyController returns a copy of c that shares no mutable state with it
+// (gains and the controllers' workspaces), so that simulators running
+// concurrently on one model never share a controller.
 func copyController(c Controller) Controller {
 	switch x := c.(type) {
 	case *PD:

@@ -2,6 +2,8 @@ package sim
 
 import (
 	"math"
+	"reflect"
+	"sync"
 	"testing"
 
 	"stickslip/contact"
@@ -64,4 +66,33 @@ func TestPusherMovesCarton(t *testing.T) {
 		t.Errorf("carton–table events: %d stick→slip, %d slip→stick; want both sticking and sliding phases", stickSlip, slipStick)
 	}
 	t.Logf("carton moved %.3f m; %d stick→slip and %d slip→stick events", moved, stickSlip, slipStick)
+}
+
+func TestConcurrentSimsShareAModel(t *testing.T) {
+	// Simulators built from one model run concurrently (calibration
+	// windows do); each must give the result it gives alone.
+	m := pusherCell()
+	alone, err := Rollout(m, Settings{Duration: 0.6}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	runs := make([]*Run, 4)
+	errs := make([]error, 4)
+	var wg sync.WaitGroup
+	for i := range runs {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			runs[i], errs[i] = Rollout(m, Settings{Duration: 0.6}, nil)
+		}()
+	}
+	wg.Wait()
+	for i, r := range runs {
+		if errs[i] != nil {
+			t.Fatal(errs[i])
+		}
+		if !reflect.DeepEqual(r.Frames, alone.Frames) {
+			t.Errorf("concurrent rollout %d differs from the rollout alone", i)
+		}
+	}
 }

@@ -117,6 +117,7 @@ type Sim struct {
 	q0, v0             []float64
 	vpass              [midpointPasses + 1][]float64
 	tan                *tangentSweep
+	ctl                Controller // the simulator's own copy of the model's controller
 	ctlIn              ControlInput
 	ctlOut             ControlOutput
 	limits             []limitRow
@@ -215,6 +216,9 @@ func (s *Sim) compileActuators() error {
 			return fmt.Errorf("actuator %q: effort limit %g is negative", a.Name, a.EffortLimit)
 		}
 	}
+	// Controllers keep workspaces; each simulator gets its own copy so that
+	// simulators sharing a model can run concurrently.
+	s.ctl = copyController(m.Controller)
 	s.ctlIn = ControlInput{Q: make([]float64, n), QD: make([]float64, n)}
 	s.ctlOut = ControlOutput{Effort: make([]float64, n), Stiffness: make([]float64, n), Damping: make([]float64, n)}
 	return nil
@@ -237,7 +241,7 @@ func (s *Sim) control() {
 		s.tau[i], s.kp[i], s.kd[i], s.tauCmd[i], s.tauAct[i] = 0, 0, 0, 0, 0
 		s.sat[i] = false
 	}
-	if m.Controller != nil && len(m.Actuators) > 0 {
+	if s.ctl != nil && len(m.Actuators) > 0 {
 		in, out := &s.ctlIn, &s.ctlOut
 		in.T = s.t
 		for i, a := range m.Actuators {
@@ -246,7 +250,7 @@ func (s *Sim) control() {
 			in.QD[i] = s.v[d]
 			out.Effort[i], out.Stiffness[i], out.Damping[i] = 0, 0, 0
 		}
-		m.Controller.Command(in, out)
+		s.ctl.Command(in, out)
 		for i, a := range m.Actuators {
 			d := s.lay.bodies[a.Body].vOff
 			e := out.Effort[i]

@@ -72,8 +72,8 @@ func (t *tangentSweep) column(s *Sim, j int) error {
 	for i := range t.dtau {
 		t.dtau[i], t.dkp[i], t.dkd[i] = 0, 0, 0
 	}
-	if m.Controller != nil && len(m.Actuators) > 0 {
-		pd, _ := pdOf(m)
+	if s.ctl != nil && len(m.Actuators) > 0 {
+		pd, _ := pdIn(s.ctl)
 		out := &s.ctlOut
 		for i, a := range m.Actuators {
 			d := lay.bodies[a.Body].vOff
