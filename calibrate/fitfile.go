@@ -223,25 +223,10 @@ func ParseFitFile(src []byte, path string) (*FitFile, error) {
 	fail := func(line int, field, format string, args ...any) error {
 		return &FieldError{File: path, Line: line, Field: field, Err: fmt.Errorf(format, args...)}
 	}
-	f := &FitFile{Path: path, line: map[string]int{}}
-	var root yaml.Node
-	if err := yaml.Unmarshal(src, &root); err != nil {
-		return nil, yamlError(path, err)
-	}
-	if len(root.Content) == 0 {
-		return nil, fail(0, "", "empty fit file: want at least scene, train and parameters")
-	}
-	doc := root.Content[0]
-	if doc.Kind != yaml.MappingNode {
-		return nil, fail(doc.Line, "", "a fit file is a mapping of fields")
-	}
-	for i := 0; i+1 < len(doc.Content); i += 2 {
-		f.line[doc.Content[i].Value] = doc.Content[i].Line
-	}
-	dec := yaml.NewDecoder(bytes.NewReader(src))
-	dec.KnownFields(true)
-	if err := dec.Decode(f); err != nil && !errors.Is(err, io.EOF) {
-		return nil, yamlError(path, err)
+	f := &FitFile{Path: path}
+	var err error
+	if f.line, err = decodeStrict(src, path, "fit file", "scene, train and parameters", f); err != nil {
+		return nil, err
 	}
 	if f.Scene == "" {
 		return nil, fail(0, "scene", "missing: name a scene file or built-in scene")
@@ -306,6 +291,34 @@ func ParseFitFile(src []byte, path string) (*FitFile, error) {
 }
 
 // yamlError turns a yaml.v3 error into a *sim.FileError, keeping its line.
+// decodeStrict decodes the YAML mapping src into v, rejecting unknown
+// fields, and returns the line of each top-level field. kind and want name
+// the file and its essential fields in messages.
+func decodeStrict(src []byte, path, kind, want string, v any) (map[string]int, error) {
+	var root yaml.Node
+	if err := yaml.Unmarshal(src, &root); err != nil {
+		return nil, yamlError(path, err)
+	}
+	if len(root.Content) == 0 {
+		return nil, &FieldError{File: path, Err: fmt.Errorf("empty %s: want at least %s", kind, want)}
+	}
+	doc := root.Content[0]
+	if doc.Kind != yaml.MappingNode {
+		return nil, &FieldError{File: path, Line: doc.Line, Err: fmt.Errorf("a %s is a mapping of fields", kind)}
+	}
+	lines := map[string]int{}
+	for i := 0; i+1 < len(doc.Content); i += 2 {
+		lines[doc.Content[i].Value] = doc.Content[i].Line
+	}
+	dec := yaml.NewDecoder(bytes.NewReader(src))
+	dec.KnownFields(true)
+	if err := dec.Decode(v); err != nil && !errors.Is(err, io.EOF) {
+		return nil, yamlError(path, err)
+	}
+	return lines, nil
+}
+
+// yamlError turns a yaml.v3 error into a FieldError with its line.
 func yamlError(path string, err error) error {
 	msg := err.Error()
 	msg = strings.TrimPrefix(msg, "yaml: ")

@@ -1,11 +1,9 @@
 package calibrate
 
 import (
-	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -140,25 +138,10 @@ func ParseTuneFile(src []byte, path string) (*TuneFile, error) {
 	fail := func(line int, field, format string, args ...any) error {
 		return &FieldError{File: path, Line: line, Field: field, Err: fmt.Errorf(format, args...)}
 	}
-	f := &TuneFile{Path: path, line: map[string]int{}}
-	var root yaml.Node
-	if err := yaml.Unmarshal(src, &root); err != nil {
-		return nil, tuneYAMLError(path, err)
-	}
-	if len(root.Content) == 0 {
-		return nil, fail(0, "", "empty tuning file: want at least scene, gains and cost")
-	}
-	doc := root.Content[0]
-	if doc.Kind != yaml.MappingNode {
-		return nil, fail(doc.Line, "", "a tuning file is a mapping of fields")
-	}
-	for i := 0; i+1 < len(doc.Content); i += 2 {
-		f.line[doc.Content[i].Value] = doc.Content[i].Line
-	}
-	dec := yaml.NewDecoder(bytes.NewReader(src))
-	dec.KnownFields(true)
-	if err := dec.Decode(f); err != nil && !errors.Is(err, io.EOF) {
-		return nil, tuneYAMLError(path, err)
+	f := &TuneFile{Path: path}
+	var err error
+	if f.line, err = decodeStrict(src, path, "tuning file", "scene, gains and cost", f); err != nil {
+		return nil, err
 	}
 	if f.Scene == "" {
 		return nil, fail(0, "scene", "missing: name a scene file (typically the fitted scene) or a built-in scene")
@@ -240,20 +223,6 @@ func ParseTuneFile(src []byte, path string) (*TuneFile, error) {
 		}
 	}
 	return f, nil
-}
-
-func tuneYAMLError(path string, err error) error {
-	msg := strings.TrimPrefix(err.Error(), "yaml: ")
-	msg = strings.TrimPrefix(msg, "unmarshal errors:\n  ")
-	line := 0
-	if rest, ok := strings.CutPrefix(msg, "line "); ok {
-		if n, tail, ok := strings.Cut(rest, ":"); ok {
-			if _, err := fmt.Sscanf(n, "%d", &line); err == nil {
-				msg = strings.TrimSpace(tail)
-			}
-		}
-	}
-	return &FieldError{File: path, Line: line, Err: errors.New(msg)}
 }
 
 // Dir returns the directory relative paths in the file resolve against.
