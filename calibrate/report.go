@@ -161,20 +161,29 @@ func (c *Calibration) WriteReport(dir string, info ReportInfo) error {
 	return sim.WriteDir(dir, "report.json", files)
 }
 
+// plotPNG renders a plot as PNG bytes of the given size.
+func plotPNG(p *plot.Plot, w, h vg.Length) ([]byte, error) {
+	wt, err := p.WriterTo(w, h, "png")
+	if err != nil {
+		return nil, err
+	}
+	var b bytes.Buffer
+	if _, err := wt.WriteTo(&b); err != nil {
+		return nil, err
+	}
+	return b.Bytes(), nil
+}
+
 // ReportFiles renders the report: file name → contents.
 func (c *Calibration) ReportFiles(info ReportInfo) (map[string][]byte, error) {
 	files := map[string][]byte{}
 	var plots []string
 	addPlot := func(name string, p *plot.Plot, w, h vg.Length) error {
-		wt, err := p.WriterTo(w, h, "png")
+		b, err := plotPNG(p, w, h)
 		if err != nil {
 			return err
 		}
-		var b bytes.Buffer
-		if _, err := wt.WriteTo(&b); err != nil {
-			return err
-		}
-		files[name] = b.Bytes()
+		files[name] = b
 		plots = append(plots, name)
 		return nil
 	}

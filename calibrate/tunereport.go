@@ -206,15 +206,11 @@ func (r *TuneResult) ReportFiles(t *Tuner, info TuneReportInfo) (map[string][]by
 	files := map[string][]byte{}
 	var plots []string
 	add := func(name string, p *plot.Plot) error {
-		wt, err := p.WriterTo(6*vg.Inch, 3.5*vg.Inch, "png")
+		b, err := plotPNG(p, 6*vg.Inch, 3.5*vg.Inch)
 		if err != nil {
 			return err
 		}
-		var b bytes.Buffer
-		if _, err := wt.WriteTo(&b); err != nil {
-			return err
-		}
-		files[name] = b.Bytes()
+		files[name] = b
 		plots = append(plots, name)
 		return nil
 	}
