@@ -522,10 +522,15 @@ func (s *Solver) centralPoint(delta float64) {
 // complementary pair (l0, y0): the member that is larger, compared in
 // impulse units (ρ y0 against l0), is kept, and the other is delta times
 // it, so that y/l is delta/ρ (active) or 1/(delta ρ) (inactive). A pair
-// with both members zero (weakly active) becomes (scale, scale/ρ).
+// with both members zero (weakly active) becomes (scale, scale/ρ); so does
+// a pair whose larger member is below delta·scale in impulse units, which is
+// zero to rounding (a sticking contact exactly at the friction limit puts
+// one eigenvalue of its cone pair there, and keeping it would leave the
+// pair on the cone's boundary, where the derivative's Newton matrix is
+// infinite).
 func centralPair(l0, y0, rho, delta, scale float64) (l, y float64) {
 	switch {
-	case l0 <= 0 && y0 <= 0:
+	case l0 <= 0 && y0 <= 0, math.Max(l0, rho*y0) <= delta*scale:
 		return scale, scale / rho
 	case l0 >= rho*y0:
 		return l0, delta * l0 / rho
