@@ -3,6 +3,7 @@ package sim
 import (
 	"fmt"
 	"math"
+	"slices"
 )
 
 // Actuator applies a force or torque along a single-DOF joint.
@@ -63,6 +64,36 @@ func (tb *Table) Validate(n int) error {
 		}
 	}
 	return nil
+}
+
+// clone returns a copy of the table that shares no storage with it.
+func (tb *Table) clone() Table {
+	c := Table{Times: slices.Clone(tb.Times), Values: make([][]float64, len(tb.Values))}
+	for i, row := range tb.Values {
+		c.Values[i] = slices.Clone(row)
+	}
+	return c
+}
+
+// weight returns the derivative of At(t) with respect to row k's values
+// (the linear interpolation's hat function at row k), and of Rate(t).
+func (tb *Table) weight(t float64, k int) (value, rate float64) {
+	i, f, ok := tb.segment(t)
+	if !ok {
+		last := len(tb.Times) - 1
+		if (t < tb.Times[0] && k == 0) || (t >= tb.Times[last] && k == last) {
+			return 1, 0
+		}
+		return 0, 0
+	}
+	dt := tb.Times[i+1] - tb.Times[i]
+	switch k {
+	case i:
+		return 1 - f, -1 / dt
+	case i + 1:
+		return f, 1 / dt
+	}
+	return 0, 0
 }
 
 // segment returns the row index i with Times[i] ≤ t < Times[i+1] and the

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strconv"
 	"strings"
 )
 
@@ -22,6 +23,8 @@ import (
 //	start.vx … start.vz:BODY            initial linear velocity, m/s
 //	start.wx … start.wz:BODY            initial angular velocity, rad/s
 //	start.q:JOINT, start.qd:JOINT       initial joint position and velocity
+//	feedforward.K:ACTUATOR              row K (from 0) of the feedforward effort table
+//	target.K:ACTUATOR                   row K (from 0) of the PD target table
 //
 // Inertia is addressed by its diagonal in body axes (the principal moments
 // when the body axes are principal); off-diagonal terms stay fixed.
@@ -52,6 +55,8 @@ const (
 	pStartAngVel
 	pStartQ
 	pStartQD
+	pFeedforward // a feedforward effort table entry (control input)
+	pTarget      // a PD target table entry (control input)
 )
 
 var axisNames = map[string]int{"x": 0, "y": 1, "z": 2}
@@ -59,7 +64,7 @@ var axisNames = map[string]int{"x": 0, "y": 1, "z": 2}
 // ParamHelp lists the parameter name forms, for error messages and --help.
 const ParamHelp = "friction:A/B, restitution:A/B, mass:BODY, com.{x,y,z}:BODY, inertia.{x,y,z}:BODY, " +
 	"damping:JOINT, joint-friction:JOINT, armature:JOINT, kp:ACTUATOR, kd:ACTUATOR, gravity.{x,y,z}, " +
-	"start.{x,y,z,vx,vy,vz,wx,wy,wz}:BODY, start.{q,qd}:JOINT"
+	"start.{x,y,z,vx,vy,vz,wx,wy,wz}:BODY, start.{q,qd}:JOINT, feedforward.K:ACTUATOR, target.K:ACTUATOR"
 
 // ParseParam resolves a parameter name against a model.
 func ParseParam(m *Model, name string) (Param, error) {
@@ -87,6 +92,35 @@ func ParseParam(m *Model, name string) (Param, error) {
 	}
 	var err error
 	base, comp, hasComp := strings.Cut(qty, ".")
+	if hasComp && (base == "feedforward" || base == "target") {
+		row, err := strconv.Atoi(comp)
+		if err != nil || row < 0 {
+			return bad("row %q is not a table row number (0, 1, ...)", comp)
+		}
+		act := slices.IndexFunc(m.Actuators, func(a Actuator) bool { return a.Name == owner })
+		if act < 0 {
+			return bad("no actuator named %q", owner)
+		}
+		var tb *Table
+		if base == "feedforward" {
+			ff, err := ffIn(m.Controller)
+			if err != nil {
+				return bad("%v", err)
+			}
+			p.kind, tb = pFeedforward, &ff.Efforts
+		} else {
+			pd, err := pdOf(m)
+			if err != nil {
+				return bad("%v", err)
+			}
+			p.kind, tb = pTarget, &pd.Targets
+		}
+		if row >= len(tb.Values) {
+			return bad("the table has %d rows", len(tb.Values))
+		}
+		p.index, p.axis = act, row
+		return p, nil
+	}
 	if hasComp {
 		if _, ok := axisNames[comp]; !ok && base != "start" {
 			return bad("component %q is not x, y or z", comp)
@@ -194,6 +228,21 @@ func ParseParams(m *Model, names []string) ([]Param, error) {
 // pdOf returns the model's PD controller, directly or inside a Sum.
 func pdOf(m *Model) (*PD, error) { return pdIn(m.Controller) }
 
+// ffIn returns the feedforward controller c is or contains.
+func ffIn(c Controller) (*Feedforward, error) {
+	switch c := c.(type) {
+	case *Feedforward:
+		return c, nil
+	case Sum:
+		for _, x := range c {
+			if ff, ok := x.(*Feedforward); ok {
+				return ff, nil
+			}
+		}
+	}
+	return nil, fmt.Errorf("the model has no feedforward controller")
+}
+
 // pdIn returns the PD controller c is or contains.
 func pdIn(c Controller) (*PD, error) {
 	switch c := c.(type) {
@@ -249,6 +298,12 @@ func (p *Param) ref(m *Model) *float64 {
 		return &m.Bodies[p.index].Joint.Position
 	case pStartQD:
 		return &m.Bodies[p.index].Joint.Velocity
+	case pFeedforward:
+		ff, _ := ffIn(m.Controller)
+		return &ff.Efforts.Values[p.axis][p.index]
+	case pTarget:
+		pd, _ := pdOf(m)
+		return &pd.Targets.Values[p.axis][p.index]
 	}
 	panic("sim: unknown parameter kind")
 }
@@ -322,9 +377,9 @@ func CopyModel(m *Model) *Model {
 func copyController(c Controller) Controller {
 	switch x := c.(type) {
 	case *PD:
-		return &PD{Kp: slices.Clone(x.Kp), Kd: slices.Clone(x.Kd), Targets: x.Targets}
+		return &PD{Kp: slices.Clone(x.Kp), Kd: slices.Clone(x.Kd), Targets: x.Targets.clone()}
 	case *Feedforward:
-		return &Feedforward{Efforts: x.Efforts}
+		return &Feedforward{Efforts: x.Efforts.clone()}
 	case Sum:
 		s := make(Sum, len(x))
 		for i := range x {

@@ -263,3 +263,14 @@ func TestTraceMatchesForwardGradient(t *testing.T) {
 		}
 	}
 }
+
+func TestSweepControlInputs(t *testing.T) {
+	// Control inputs: entries of the PD target table and of a feedforward
+	// effort table added to it.
+	m := pdArm(200, []float64{0.3, -0.4, 0.5})
+	pd := m.Controller.(*PD)
+	pd.Targets = Table{Times: []float64{0, 0.1, 0.3}, Values: [][]float64{{0.3, -0.4, 0.5}, {0.5, -0.2, 0.4}, {0.6, -0.1, 0.2}}}
+	m.Controller = Sum{pd, &Feedforward{Efforts: Table{Times: []float64{0, 0.2}, Values: [][]float64{{1, 0, -1}, {2, 1, 0}}}}}
+	checkSweep(t, m, Settings{}, []string{"target.1:motor1", "target.2:motor3", "feedforward.0:motor2", "feedforward.1:motor1"},
+		[]float64{0.15, 0.35}, 1e-5)
+}

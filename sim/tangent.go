@@ -23,19 +23,23 @@ import (
 // modelTangent is the derivative of the model's differentiable quantities
 // along one parameter direction.
 type modelTangent struct {
-	gravity   r3.Vec
-	mass      []float64
-	com       []r3.Vec
-	inertia   []contact.Mat3
-	damping   []float64 // per body (its joint)
-	friction  []float64 // joint friction per body
-	armature  []float64
-	kp, kd    []float64 // per actuator
-	pairFric  []float64 // per material pair
-	pairRest  []float64
-	startQ    []float64 // seeds of the initial state
-	startV    []float64
-	anyInStep bool // whether the tangent touches anything a step reads
+	gravity  r3.Vec
+	mass     []float64
+	com      []r3.Vec
+	inertia  []contact.Mat3
+	damping  []float64 // per body (its joint)
+	friction []float64 // joint friction per body
+	armature []float64
+	kp, kd   []float64 // per actuator
+	pairFric []float64 // per material pair
+	pairRest []float64
+	startQ   []float64 // seeds of the initial state
+	startV   []float64
+	// A control-input column: the actuator and table row of a feedforward
+	// effort or PD target entry (-1: none).
+	ffAct, ffRow   int
+	tgtAct, tgtRow int
+	anyInStep      bool // whether the tangent touches anything a step reads
 }
 
 func newModelTangent(m *Model, nq, nv int) *modelTangent {
@@ -46,6 +50,7 @@ func newModelTangent(m *Model, nq, nv int) *modelTangent {
 		kp: make([]float64, len(m.Actuators)), kd: make([]float64, len(m.Actuators)),
 		pairFric: make([]float64, len(m.Materials.Pairs)), pairRest: make([]float64, len(m.Materials.Pairs)),
 		startQ: make([]float64, nq), startV: make([]float64, nv),
+		ffAct: -1, tgtAct: -1,
 	}
 }
 
@@ -77,6 +82,10 @@ func (dm *modelTangent) seed(s *Sim, p *Param) {
 		dm.kd[p.index] = 1
 	case pGravity:
 		*axisRef(&dm.gravity.X, &dm.gravity.Y, &dm.gravity.Z, p.axis) = 1
+	case pFeedforward:
+		dm.ffAct, dm.ffRow = p.index, p.axis
+	case pTarget:
+		dm.tgtAct, dm.tgtRow = p.index, p.axis
 	default:
 		dm.anyInStep = false
 		bl := &s.lay.bodies[p.index]

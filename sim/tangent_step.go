@@ -86,6 +86,16 @@ func (t *tangentSweep) column(s *Sim, j int) error {
 				t.dtau[d] += dm.kp[i]*(pd.q[i]-s.ctlIn.Q[i]) + dm.kd[i]*(pd.qd[i]-s.ctlIn.QD[i])
 				t.dkp[d] += dm.kp[i]
 				t.dkd[d] += dm.kd[i]
+				if dm.tgtAct == i {
+					w, wr := pd.Targets.weight(s.ctlIn.T, dm.tgtRow)
+					t.dtau[d] += pd.Kp[i]*w + pd.Kd[i]*wr
+				}
+			}
+			if dm.ffAct == i {
+				if ff, err := ffIn(s.ctl); err == nil {
+					w, _ := ff.Efforts.weight(s.ctlIn.T, dm.ffRow)
+					t.dtau[d] += w
+				}
 			}
 		}
 	}
