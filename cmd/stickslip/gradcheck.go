@@ -29,6 +29,7 @@ func runGradcheck(e *env, args []string) error {
 	smoothing := fl.Float64("smoothing", 0, "relaxed-complementarity smoothing κ of the contact solve")
 	duration := fl.Float64("duration", 0.1, "simulated seconds to differentiate through")
 	tol := fl.Float64("tol", 1e-5, "largest relative error accepted")
+	atol := fl.Float64("atol", 1e-7, "absolute error always accepted (for derivatives that are zero, where central differences leave only rounding)")
 	if err := parseFlags(fl, args); err != nil {
 		return err
 	}
@@ -36,8 +37,8 @@ func runGradcheck(e *env, args []string) error {
 		fl.Usage()
 		return badInputf("want one SCENE argument, got %d", fl.NArg())
 	}
-	if *smoothing < 0 || *duration <= 0 || *tol <= 0 {
-		return badInputf("--smoothing must be ≥ 0, --duration and --tol > 0")
+	if *smoothing < 0 || *duration <= 0 || *tol <= 0 || *atol < 0 {
+		return badInputf("--smoothing and --atol must be ≥ 0, --duration and --tol > 0")
 	}
 	sc, err := loadScene(fl.Arg(0), sets)
 	if err != nil {
@@ -114,10 +115,12 @@ func runGradcheck(e *env, args []string) error {
 		if ferr != nil {
 			return ferr
 		}
-		scale := math.Max(math.Abs(num), 1e-8)
-		er, ef := math.Abs(rev.Gradient[i]-num)/scale, math.Abs(fwd[i]-num)/scale
+		scale := math.Max(math.Abs(num), *atol)
+		dr, df := math.Abs(rev.Gradient[i]-num), math.Abs(fwd[i]-num)
+		er, ef := dr/scale, df/scale
+		limit := *tol*math.Abs(num) + *atol
 		mark := ""
-		if er > *tol || ef > *tol {
+		if !(dr <= limit) || !(df <= limit) {
 			failed++
 			mark = "  ✗"
 		}
@@ -128,8 +131,8 @@ func runGradcheck(e *env, args []string) error {
 	}
 	fmt.Fprintf(e.stdout, "\nreverse-sweep tape: %d bytes (%d per step)\n", rev.TapeBytes, rev.TapeBytes/max(steps, 1))
 	if failed > 0 {
-		return fmt.Errorf("%d of %d parameters exceed relative error %g (a contact mode may change under the finite-difference step; try --smoothing or a shorter --duration)", failed, len(ps), *tol)
+		return fmt.Errorf("%d of %d parameters exceed relative error %g (plus %g absolute) (a contact mode may change under the finite-difference step; try --smoothing or a shorter --duration)", failed, len(ps), *tol, *atol)
 	}
-	fmt.Fprintf(e.stdout, "all %d parameters within relative error %g\n", len(ps), *tol)
+	fmt.Fprintf(e.stdout, "all %d parameters within relative error %g (plus %g absolute)\n", len(ps), *tol, *atol)
 	return nil
 }

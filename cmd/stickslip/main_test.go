@@ -90,3 +90,21 @@ func TestFlagsAfterArguments(t *testing.T) {
 		t.Error("run not written where --out said")
 	}
 }
+
+func TestGradcheckCommand(t *testing.T) {
+	// A crate sliding on tile: the reverse and forward sweeps must agree
+	// with central differences; its mass has no effect (the derivative is
+	// zero to rounding), which the absolute tolerance accepts.
+	code, out, errs := runCmd(t, "gradcheck", "crate-slide", "--duration", "0.05")
+	if code != 0 || !strings.Contains(out, "friction:pine/tile") || !strings.Contains(out, "within relative error") {
+		t.Fatalf("gradcheck: exit %d\n%s\n%s", code, out, errs)
+	}
+	code, _, errs = runCmd(t, "gradcheck", "crate-slide", "--param", "mass:nobody")
+	if code != 2 || !strings.Contains(errs, `no body named "nobody"`) {
+		t.Errorf("unknown parameter owner: exit %d, stderr %q", code, errs)
+	}
+	code, _, errs = runCmd(t, "gradcheck", "crate-slide", "--param", "viscosity:crate")
+	if code != 2 || !strings.Contains(errs, "unknown quantity") {
+		t.Errorf("unknown quantity: exit %d, stderr %q", code, errs)
+	}
+}
