@@ -133,6 +133,7 @@ type Sim struct {
 
 	contacts []Contact
 	rowTrees [][2]int
+	ranges   [][2]int // rowRanges workspace
 	jac, y   []float64
 	w        mat.SymDense
 	prob     contact.Problem
@@ -600,6 +601,22 @@ func (s *Sim) jacobianRow(row []float64, b int, p, dir r3.Vec, sign float64) {
 			row[bl.vOff+d] += sign * r3.Dot(dir, s.kin.s[bl.vOff+d].pointVel(p))
 		}
 	}
+}
+
+// rowRanges returns the velocity-coordinate ranges [start, end) of the
+// distinct trees that contact-problem row r touches; the row's Jacobian is
+// zero elsewhere.
+func (s *Sim) rowRanges(r int) [][2]int {
+	rt := s.rowTrees[r]
+	s.ranges = s.ranges[:0]
+	for i, t := range rt {
+		if t < 0 || (i == 1 && t == rt[0]) {
+			continue
+		}
+		tr := &s.lay.trees[t]
+		s.ranges = append(s.ranges, [2]int{tr.vOff, tr.vOff + tr.nv})
+	}
+	return s.ranges
 }
 
 func (s *Sim) treeOf(b int) int {

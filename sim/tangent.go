@@ -245,59 +245,99 @@ func (kt *kinTangent) massMatrix(m *Model, lay *layout, k *kinematics, dm *model
 	}
 }
 
-// bias writes into dc the tangent of c(q, v) at the joint velocities v
-// with tangent dv (the kinematic tangents from update), mirroring
-// kinematics.inverseDynamics with zero acceleration. It recomputes the
-// primal recursion into k's workspaces.
-func (kt *kinTangent) bias(m *Model, lay *layout, k *kinematics, v, dv []float64, t float64, dm *modelTangent, c, dc []float64) {
-	g := m.Gravity
+// biasPrimal holds the primal quantities of one recursive Newton–Euler
+// pass that its tangent needs; they are the same for every tangent column,
+// so they are computed once per pass and step.
+type biasPrimal struct {
+	bvel, acc, moving []motion
+	iv                []force // I·vel
+	frc               []force // body forces after the backward accumulation
+}
+
+func newBiasPrimal(nb int) *biasPrimal {
+	return &biasPrimal{bvel: make([]motion, nb), acc: make([]motion, nb), moving: make([]motion, nb),
+		iv: make([]force, nb), frc: make([]force, nb)}
+}
+
+// compute evaluates the pass at joint velocities v and time t, mirroring
+// kinematics.inverseDynamics with zero acceleration.
+func (bp *biasPrimal) compute(m *Model, lay *layout, k *kinematics, v []float64, t float64) {
 	for i := range m.Bodies {
 		bl := &lay.bodies[i]
-		var pa, pv, dpa, dpv motion
+		var pa, pv motion
 		if bl.parent >= 0 {
-			pa, pv = k.acc[bl.parent], k.bvel[bl.parent]
-			dpa, dpv = kt.dacc[bl.parent], kt.dbvel[bl.parent]
+			pa, pv = bp.acc[bl.parent], bp.bvel[bl.parent]
 		} else {
-			pa = motion{v: r3.Scale(-1, g)}
-			dpa = motion{v: r3.Scale(-1, dm.gravity)}
+			pa = motion{v: r3.Scale(-1, m.Gravity)}
 		}
-		var vj, moving, dvj, dmoving motion
+		var vj, moving motion
 		for d := 0; d < bl.nv; d++ {
-			sd, dsd := k.s[bl.vOff+d], kt.ds[bl.vOff+d]
-			x := sd.scale(v[bl.vOff+d])
-			dx := dsd.scale(v[bl.vOff+d]).add(sd.scale(dv[bl.vOff+d]))
-			vj, dvj = vj.add(x), dvj.add(dx)
+			x := k.s[bl.vOff+d].scale(v[bl.vOff+d])
+			vj = vj.add(x)
 			if !(m.Bodies[i].Joint.Kind == Free && d >= 3) {
-				moving, dmoving = moving.add(x), dmoving.add(dx)
+				moving = moving.add(x)
 			}
 		}
-		vel, dvel := pv.add(vj), dpv.add(dvj)
-		k.bvel[i], kt.dbvel[i] = vel, dvel
-		k.acc[i] = pa.add(vel.crossM(moving))
-		kt.dacc[i] = dpa.add(dvel.crossM(moving)).add(vel.crossM(dmoving))
-		in, din := k.in[i], kt.din[i]
-		iv := in.apply(vel)
-		div := din.apply(vel).add(in.apply(dvel))
-		k.frc[i] = in.apply(k.acc[i]).add(vel.crossF(iv))
-		kt.dfrc[i] = din.apply(k.acc[i]).add(in.apply(kt.dacc[i])).add(dvel.crossF(iv)).add(vel.crossF(div))
+		vel := pv.add(vj)
+		bp.bvel[i], bp.moving[i] = vel, moving
+		bp.acc[i] = pa.add(vel.crossM(moving))
+		bp.iv[i] = k.in[i].apply(vel)
+		bp.frc[i] = k.in[i].apply(bp.acc[i]).add(vel.crossF(bp.iv[i]))
 	}
 	for li := range m.Loads {
 		l := &m.Loads[li]
 		f, tq := l.At(t)
+		p := k.pose[l.Body].Apply(l.Point)
+		bp.frc[l.Body] = bp.frc[l.Body].sub(force{n: r3.Add(tq, r3.Cross(p, f)), f: f})
+	}
+	for i := len(m.Bodies) - 1; i >= 0; i-- {
+		if p := lay.bodies[i].parent; p >= 0 {
+			bp.frc[p] = bp.frc[p].add(bp.frc[i])
+		}
+	}
+}
+
+// bias writes into dc the tangent of c(q, v) for the pass bp (evaluated at
+// the joint velocities v) along dv and the kinematic and model tangents.
+func (kt *kinTangent) bias(m *Model, lay *layout, k *kinematics, bp *biasPrimal, v, dv []float64, t float64, dm *modelTangent, dc []float64) {
+	for i := range m.Bodies {
+		bl := &lay.bodies[i]
+		var dpa, dpv motion
+		if bl.parent >= 0 {
+			dpa, dpv = kt.dacc[bl.parent], kt.dbvel[bl.parent]
+		} else {
+			dpa = motion{v: r3.Scale(-1, dm.gravity)}
+		}
+		var dvj, dmoving motion
+		for d := 0; d < bl.nv; d++ {
+			sd, dsd := k.s[bl.vOff+d], kt.ds[bl.vOff+d]
+			dx := dsd.scale(v[bl.vOff+d]).add(sd.scale(dv[bl.vOff+d]))
+			dvj = dvj.add(dx)
+			if !(m.Bodies[i].Joint.Kind == Free && d >= 3) {
+				dmoving = dmoving.add(dx)
+			}
+		}
+		vel, dvel := bp.bvel[i], dpv.add(dvj)
+		kt.dbvel[i] = dvel
+		kt.dacc[i] = dpa.add(dvel.crossM(bp.moving[i])).add(vel.crossM(dmoving))
+		in, din := k.in[i], kt.din[i]
+		div := din.apply(vel).add(in.apply(dvel))
+		kt.dfrc[i] = din.apply(bp.acc[i]).add(in.apply(kt.dacc[i])).add(dvel.crossF(bp.iv[i])).add(vel.crossF(div))
+	}
+	for li := range m.Loads {
+		l := &m.Loads[li]
+		f, _ := l.At(t)
 		pose := k.pose[l.Body]
 		p := pose.Apply(l.Point)
 		dp := r3.Add(kt.dp[l.Body], r3.Cross(kt.dphi[l.Body], r3.Sub(p, pose.Pos)))
-		k.frc[l.Body] = k.frc[l.Body].sub(force{n: r3.Add(tq, r3.Cross(p, f)), f: f})
 		kt.dfrc[l.Body] = kt.dfrc[l.Body].sub(force{n: r3.Cross(dp, f)})
 	}
 	for i := len(m.Bodies) - 1; i >= 0; i-- {
 		bl := &lay.bodies[i]
 		for d := 0; d < bl.nv; d++ {
-			c[bl.vOff+d] = k.s[bl.vOff+d].dot(k.frc[i])
-			dc[bl.vOff+d] = kt.ds[bl.vOff+d].dot(k.frc[i]) + k.s[bl.vOff+d].dot(kt.dfrc[i])
+			dc[bl.vOff+d] = kt.ds[bl.vOff+d].dot(bp.frc[i]) + k.s[bl.vOff+d].dot(kt.dfrc[i])
 		}
 		if p := bl.parent; p >= 0 {
-			k.frc[p] = k.frc[p].add(k.frc[i])
 			kt.dfrc[p] = kt.dfrc[p].add(kt.dfrc[i])
 		}
 	}

@@ -15,11 +15,13 @@ type tangentSweep struct {
 	dq, dv [][]float64
 	dm     []*modelTangent
 	kt     *kinTangent
+	passes [midpointPasses + 1]*biasPrimal
+	vargs  [midpointPasses + 1][]float64
 
 	// workspaces
-	dmass, dc, c, dtau, dkp, dkd, drhs, x, dx []float64
-	dvarg, dvfree, dvplus                     []float64
-	djac, dbeff, dlam, dmu, w, tmp            []float64
+	dmass, dc, dtau, dkp, dkd, drhs, x, dx []float64
+	dvarg, dvfree, dvplus                  []float64
+	djac, dbeff, dlam, dmu, w, tmp         []float64
 }
 
 func newTangents(s *Sim, params []Param) *tangentSweep { return newTangentColumns(s, 0, params) }
@@ -39,8 +41,12 @@ func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 		t.dv = append(t.dv, append([]float64(nil), dm.startV...))
 	}
 	mk := func() []float64 { return make([]float64, nv) }
+	for p := range t.passes {
+		t.passes[p] = newBiasPrimal(len(s.model.Bodies))
+		t.vargs[p] = mk()
+	}
 	t.dmass = make([]float64, s.lay.massLen)
-	t.dc, t.c, t.dtau, t.dkp, t.dkd, t.drhs, t.x, t.dx = mk(), mk(), mk(), mk(), mk(), mk(), mk(), mk()
+	t.dc, t.dtau, t.dkp, t.dkd, t.drhs, t.x, t.dx = mk(), mk(), mk(), mk(), mk(), mk(), mk()
 	t.dvarg, t.dvfree, t.dvplus, t.w, t.tmp = mk(), mk(), mk(), mk(), mk()
 	return t
 }
@@ -50,6 +56,18 @@ func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 // the start of the step, q0 and v0, the midpoint passes, contacts and the
 // solver's last factorization).
 func (t *tangentSweep) step(s *Sim) error {
+	// The primal Newton–Euler passes are the same for every column.
+	for pass := range t.passes {
+		varg := t.vargs[pass]
+		if pass == 0 {
+			copy(varg, s.v0)
+		} else {
+			for i := range varg {
+				varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
+			}
+		}
+		t.passes[pass].compute(s.model, s.lay, s.kin, varg, s.t)
+	}
 	for j := range t.dq {
 		if err := t.column(s, j); err != nil {
 			return err
@@ -125,17 +143,14 @@ func (t *tangentSweep) column(s *Sim, j int) error {
 
 	// Midpoint passes.
 	for pass := 0; pass <= midpointPasses; pass++ {
-		varg := s.rhs // scratch for the primal argument
 		if pass == 0 {
-			copy(varg, s.v0)
 			copy(t.dvarg, dv)
 		} else {
-			for i := range varg {
-				varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
+			for i := range t.dvarg {
 				t.dvarg[i] = 0.5 * (dv[i] + t.dvfree[i])
 			}
 		}
-		kt.bias(m, lay, kin, varg, t.dvarg, s.t, dm, t.c, t.dc)
+		kt.bias(m, lay, kin, t.passes[pass], t.vargs[pass], t.dvarg, s.t, dm, t.dc)
 		for i := 0; i < nv; i++ {
 			damp := s.damp[i] + h*s.kp[i]
 			ddamp := t.dampOf(s, dm, i) + h*t.dkp[i]
@@ -225,8 +240,13 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 	t.dbeff = grow(t.dbeff, n)
 	t.dlam = grow(t.dlam, n)
 	t.dmu = grow(t.dmu, nc)
-	for i := range t.djac {
-		t.djac[i] = 0
+	// Rows are nonzero only on the velocity coordinates of the (at most
+	// two) trees they touch; the loops below visit just those.
+	for r := 0; r < n; r++ {
+		row := t.djac[r*nv : (r+1)*nv]
+		for _, rg := range s.rowRanges(r) {
+			clear(row[rg[0]:rg[1]])
+		}
 	}
 	for k := range s.contacts {
 		c := &s.contacts[k]
@@ -293,8 +313,10 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 			continue
 		}
 		row := t.djac[r*nv : (r+1)*nv]
-		for d := range t.w {
-			t.w[d] += row[d] * l
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				t.w[d] += row[d] * l
+			}
 		}
 	}
 	// A⁻¹ w.
@@ -305,8 +327,10 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 		row := t.djac[r*nv : (r+1)*nv]
 		jr := s.jac[r*nv : (r+1)*nv]
 		var sum float64
-		for d := 0; d < nv; d++ {
-			sum += row[d]*s.v[d] + jr[d]*(t.dvfree[d]+t.tmp[d])
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				sum += row[d]*s.v[d] + jr[d]*(t.dvfree[d]+t.tmp[d])
+			}
 		}
 		t.dbeff[r] += sum
 	}
@@ -317,8 +341,10 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 	for r := 0; r < n; r++ {
 		dl := t.dlam[r]
 		jr := s.jac[r*nv : (r+1)*nv]
-		for d := range t.w {
-			t.w[d] += jr[d] * dl
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				t.w[d] += jr[d] * dl
+			}
 		}
 	}
 	s.solveMass(t.w)
