@@ -34,41 +34,30 @@ type TuneReportInfo struct {
 	Horizon    float64 // seconds
 }
 
-// tnum is a JSON number that writes null when not finite.
-type tnum float64
-
-func (n tnum) MarshalJSON() ([]byte, error) {
-	f := float64(n)
-	if math.IsNaN(f) || math.IsInf(f, 0) {
-		return []byte("null"), nil
-	}
-	return json.Marshal(f)
-}
-
 type jsonGain struct {
-	Name    string  `json:"name"`
-	Initial tnum    `json:"initial"`
-	Tuned   tnum    `json:"tuned"`
-	Bounds  [2]tnum `json:"bounds"`
-	AtBound bool    `json:"at_bound"`
+	Name    string `json:"name"`
+	Initial num    `json:"initial"`
+	Tuned   num    `json:"tuned"`
+	Bounds  [2]num `json:"bounds"`
+	AtBound bool   `json:"at_bound"`
 }
 
 type jsonTerms struct {
-	Tracking    tnum `json:"tracking"`
-	Effort      tnum `json:"effort"`
-	EffortLimit tnum `json:"effort_limit"`
-	FinalPose   tnum `json:"final_pose"`
-	PoseError   tnum `json:"final_position_error_m"`
+	Tracking    num `json:"tracking"`
+	Effort      num `json:"effort"`
+	EffortLimit num `json:"effort_limit"`
+	FinalPose   num `json:"final_pose"`
+	PoseError   num `json:"final_position_error_m"`
 }
 
 type jsonCost struct {
-	Mean    tnum      `json:"mean"`
-	SD      tnum      `json:"sd"`
-	Min     tnum      `json:"min"`
-	Max     tnum      `json:"max"`
-	Worst10 tnum      `json:"worst_tenth_mean"`
+	Mean    num       `json:"mean"`
+	SD      num       `json:"sd"`
+	Min     num       `json:"min"`
+	Max     num       `json:"max"`
+	Worst10 num       `json:"worst_tenth_mean"`
 	Terms   jsonTerms `json:"mean_terms"`
-	Samples []tnum    `json:"per_sample"`
+	Samples []num     `json:"per_sample"`
 }
 
 type jsonTuneReport struct {
@@ -80,7 +69,7 @@ type jsonTuneReport struct {
 	Samples     int             `json:"samples"`
 	Seed        uint64          `json:"seed"`
 	Horizon     float64         `json:"horizon_s"`
-	Weights     map[string]tnum `json:"weights"`
+	Weights     map[string]num  `json:"weights"`
 	Gains       []jsonGain      `json:"gains"`
 	Before      jsonCost        `json:"cost_before"`
 	After       jsonCost        `json:"cost_after"`
@@ -96,7 +85,7 @@ type jsonTuneReport struct {
 
 func costJSON(ev *Evaluation) jsonCost {
 	sp := ev.Spread()
-	c := jsonCost{Mean: tnum(sp.Mean), SD: tnum(sp.SD), Min: tnum(sp.Min), Max: tnum(sp.Max), Worst10: tnum(sp.Worst10)}
+	c := jsonCost{Mean: num(sp.Mean), SD: num(sp.SD), Min: num(sp.Min), Max: num(sp.Max), Worst10: num(sp.Worst10)}
 	var t TermCosts
 	n := float64(len(ev.Samples))
 	for _, s := range ev.Samples {
@@ -105,9 +94,9 @@ func costJSON(ev *Evaluation) jsonCost {
 		t.EffortLimit += s.EffortLimit / n
 		t.FinalPose += s.FinalPose / n
 		t.PoseError += s.PoseError / n
-		c.Samples = append(c.Samples, tnum(s.Total()))
+		c.Samples = append(c.Samples, num(s.Total()))
 	}
-	c.Terms = jsonTerms{tnum(t.Tracking), tnum(t.Effort), tnum(t.EffortLimit), tnum(t.FinalPose), tnum(t.PoseError)}
+	c.Terms = jsonTerms{num(t.Tracking), num(t.Effort), num(t.EffortLimit), num(t.FinalPose), num(t.PoseError)}
 	return c
 }
 
@@ -117,14 +106,14 @@ func (r *TuneResult) JSON(t *Tuner, info TuneReportInfo, plots []string) ([]byte
 	w := info.Weights
 	doc := jsonTuneReport{Format: TuneReportFormat, Scene: info.Scene, TunedScene: info.TunedScene, FitReport: info.FitReport,
 		Uncertain: append([]string{}, t.st.p.Uncertain...), Samples: len(t.st.p.Draws), Seed: info.Seed, Horizon: info.Horizon,
-		Weights: map[string]tnum{"tracking": tnum(w.Tracking), "effort": tnum(w.Effort), "effort_limit": tnum(w.EffortLimit), "final_pose": tnum(w.FinalPose)},
+		Weights: map[string]num{"tracking": num(w.Tracking), "effort": num(w.Effort), "effort_limit": num(w.EffortLimit), "final_pose": num(w.FinalPose)},
 		Before:  costJSON(r.Before), After: costJSON(r.After), Status: r.Status, Converged: r.Converged,
 		Iterations: len(r.History) - 1, Evaluations: r.Evaluations, History: r.History,
 		Warnings: append([]string{}, info.Warnings...), Caution: SafetyCaution, Plots: append([]string{}, plots...)}
 	for j, n := range r.Names {
 		x := r.Tuned[j]
-		doc.Gains = append(doc.Gains, jsonGain{Name: n, Initial: tnum(r.Initial[j]), Tuned: tnum(x),
-			Bounds: [2]tnum{tnum(r.Lower[j]), tnum(r.Upper[j])}, AtBound: x <= r.Lower[j] || x >= r.Upper[j]})
+		doc.Gains = append(doc.Gains, jsonGain{Name: n, Initial: num(r.Initial[j]), Tuned: num(x),
+			Bounds: [2]num{num(r.Lower[j]), num(r.Upper[j])}, AtBound: x <= r.Lower[j] || x >= r.Upper[j]})
 	}
 	b, err := json.MarshalIndent(doc, "", "  ")
 	if err != nil {
