@@ -208,6 +208,13 @@ func Fit(c *Config) (*Calibration, error) {
 	}
 	elapsed := func() time.Duration { return time.Since(begin) + time.Duration(prior*float64(time.Second)) }
 
+	if opts.FreeStart != StartStateFree {
+		// Measured (coverage_test.go): with starts taken from the log, the
+		// 95 % intervals covered the truth in 62–74 % of replicate fits.
+		out.Warnings = append(out.Warnings, fmt.Sprintf("free_start is %s: each window starts from the noisy logged state as if it were exact, "+
+			"so the standard errors and 95 %% intervals are too narrow (about 62–74 %% coverage measured); use free_start: state for calibrated intervals", opts.FreeStart))
+	}
+
 	// The "before" errors use the exact contact model.
 	train.Kappa = opts.Smoothing[len(opts.Smoothing)-1]
 	// A simulation that fails at the initial values is worth a warning,
