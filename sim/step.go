@@ -133,7 +133,7 @@ type Sim struct {
 
 	contacts []Contact
 	rowTrees [][2]int
-	ranges   [][2]int // rowRanges workspace
+	ranges   []rowRange // per row, the coordinate ranges its trees span
 	jac, y   []float64
 	w        mat.SymDense
 	prob     contact.Problem
@@ -605,18 +605,36 @@ func (s *Sim) jacobianRow(row []float64, b int, p, dir r3.Vec, sign float64) {
 
 // rowRanges returns the velocity-coordinate ranges [start, end) of the
 // distinct trees that contact-problem row r touches; the row's Jacobian is
-// zero elsewhere.
+// zero elsewhere. They are set by solveContacts.
 func (s *Sim) rowRanges(r int) [][2]int {
-	rt := s.rowTrees[r]
-	s.ranges = s.ranges[:0]
-	for i, t := range rt {
-		if t < 0 || (i == 1 && t == rt[0]) {
-			continue
-		}
-		tr := &s.lay.trees[t]
-		s.ranges = append(s.ranges, [2]int{tr.vOff, tr.vOff + tr.nv})
+	return s.ranges[r].r[:s.ranges[r].n]
+}
+
+// rowRange holds up to two coordinate ranges of a row.
+type rowRange struct {
+	r [2][2]int
+	n int
+}
+
+// setRowRanges fills s.ranges from s.rowTrees.
+func (s *Sim) setRowRanges(n int) {
+	if cap(s.ranges) < n {
+		s.ranges = make([]rowRange, n, 2*n)
 	}
-	return s.ranges
+	s.ranges = s.ranges[:n]
+	for r := 0; r < n; r++ {
+		rt := s.rowTrees[r]
+		rr := &s.ranges[r]
+		rr.n = 0
+		for i, t := range rt {
+			if t < 0 || (i == 1 && t == rt[0]) {
+				continue
+			}
+			tr := &s.lay.trees[t]
+			rr.r[rr.n] = [2]int{tr.vOff, tr.vOff + tr.nv}
+			rr.n++
+		}
+	}
 }
 
 func (s *Sim) treeOf(b int) int {
@@ -684,6 +702,7 @@ func (s *Sim) solveContacts() error {
 		t := s.treeOf(l.body)
 		s.rowTrees[r] = [2]int{t, t}
 	}
+	s.setRowRanges(n)
 	// Y = A⁻¹ Jᵀ, row by row, solving only in the trees a row touches.
 	copy(s.y, s.jac)
 	for r := 0; r < n; r++ {

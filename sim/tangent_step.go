@@ -219,16 +219,20 @@ func (t *tangentSweep) shapeTwist(s *Sim, g int) contact.Twist {
 	return contact.Twist{V: r3.Add(t.kt.dp[owner], r3.Cross(dphi, r3.Sub(so, o))), W: dphi}
 }
 
-// djacRow adds to row the tangent of body b's contact Jacobian row dir·J_b(p)
-// when p moves by dp and dir by ddir, with the sign.
-func (t *tangentSweep) djacRow(s *Sim, row []float64, b int, p, dp, dir, ddir r3.Vec, sign float64) {
+// djacRows adds to the contact's three rows the tangents of body b's
+// Jacobian rows dirᵣ·J_b(p) when p moves by dp and dirᵣ by ddirᵣ, with the
+// sign. Each coordinate's point velocity and its tangent are computed once
+// for the three directions.
+func (t *tangentSweep) djacRows(s *Sim, rows *[3][]float64, b int, p, dp r3.Vec, dirs, ddirs *[3]r3.Vec, sign float64) {
 	for ; b >= 0; b = s.lay.bodies[b].parent {
 		bl := &s.lay.bodies[b]
-		for d := 0; d < bl.nv; d++ {
-			sd, dsd := s.kin.s[bl.vOff+d], t.kt.ds[bl.vOff+d]
+		for d := bl.vOff; d < bl.vOff+bl.nv; d++ {
+			sd, dsd := s.kin.s[d], t.kt.ds[d]
 			pv := sd.pointVel(p)
 			dpv := r3.Add(dsd.pointVel(p), r3.Cross(sd.w, dp))
-			row[bl.vOff+d] += sign * (r3.Dot(ddir, pv) + r3.Dot(dir, dpv))
+			for r := range rows {
+				rows[r][d] += sign * (r3.Dot(ddirs[r], pv) + r3.Dot(dirs[r], dpv))
+			}
 		}
 	}
 }
@@ -257,11 +261,9 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 		p := c.Point.Pos
 		dirs := [3]r3.Vec{c.Point.Normal, c.Tangent1, c.Tangent2}
 		ddirs := [3]r3.Vec{dn, dt1, dt2}
-		for r := 0; r < 3; r++ {
-			row := t.djac[(3*k+r)*nv : (3*k+r+1)*nv]
-			t.djacRow(s, row, c.B, p, dpos, dirs[r], ddirs[r], 1)
-			t.djacRow(s, row, c.A, p, dpos, dirs[r], ddirs[r], -1)
-		}
+		rows := [3][]float64{t.djac[3*k*nv : (3*k+1)*nv], t.djac[(3*k+1)*nv : (3*k+2)*nv], t.djac[(3*k+2)*nv : (3*k+3)*nv]}
+		t.djacRows(s, &rows, c.B, p, dpos, &dirs, &ddirs, 1)
+		t.djacRows(s, &rows, c.A, p, dpos, &dirs, &ddirs, -1)
 		// Target tangent.
 		var dtarget float64
 		if c.bounce {
