@@ -106,23 +106,10 @@ func TestIdentifiabilityPushedMass(t *testing.T) {
 	// a = F/m − μg, so the mass enters only through F. A force that
 	// changes from 60 N to 90 N half-way separates F/m from μg and
 	// identifies both.
-	sc, err := scenarios.LoadBuiltin("crate-push")
-	if err != nil {
-		t.Fatal(err)
-	}
-	truth := sim.CopyModel(sc.Model)
-	truth.Loads[0].Schedule = []sim.LoadKey{{T: 0, Force: r3x(60)}, {T: 0.3, Force: r3x(60)}, {T: 0.35, Force: r3x(90)}}
-	set := sc.Settings
-	set.Duration = 0.6
-	run, err := sim.Rollout(truth, set, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	lg := runLog(t, run, 10, 5e-4, 0, 1)
-	m := sim.CopyModel(truth)
+	m, set, lg := pushedCrate(t)
 	params := freeParams(t, m, "friction:pine/tile", "mass:crate")
 	params[0].Initial, params[1].Initial = 0.3, 7
-	res, err := Fit(&Config{Model: m, Settings: sc.Settings, Train: []*Log{lg}, Params: params, Options: Options{Window: 0.2}})
+	res, err := Fit(&Config{Model: m, Settings: set, Train: []*Log{lg}, Params: params, Options: Options{Window: 0.2}})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -122,13 +122,6 @@ func (r *TuneResult) JSON(t *Tuner, info TuneReportInfo, plots []string) ([]byte
 	return append(b, '\n'), nil
 }
 
-var tuneColors = []color.Color{
-	color.RGBA{R: 0x1f, G: 0x5f, B: 0xa8, A: 0xff},
-	color.RGBA{R: 0xc4, G: 0x4e, B: 0x1c, A: 0xff},
-	color.RGBA{R: 0x2e, G: 0x8b, B: 0x57, A: 0xff},
-	color.RGBA{R: 0x80, G: 0x4d, B: 0xa0, A: 0xff},
-}
-
 func (r *TuneResult) costPlot() (*plot.Plot, error) {
 	p := plot.New()
 	p.Title.Text = "Mean task cost per accepted step"
@@ -144,7 +137,7 @@ func (r *TuneResult) costPlot() (*plot.Plot, error) {
 	if err != nil {
 		return nil, err
 	}
-	l.Color, s.Color = tuneColors[0], tuneColors[0]
+	l.Color, s.Color = palette[0], palette[0]
 	p.Add(l, s)
 	return p, nil
 }
@@ -181,10 +174,10 @@ func trackingPlot(j int, before, after *TuneTrace) (*plot.Plot, error) {
 			return nil, err
 		}
 	}
-	if err := line(before.Q[j], tuneColors[1], false, "initial gains"); err != nil {
+	if err := line(before.Q[j], palette[1], false, "initial gains"); err != nil {
 		return nil, err
 	}
-	if err := line(after.Q[j], tuneColors[0], false, "tuned gains"); err != nil {
+	if err := line(after.Q[j], palette[0], false, "tuned gains"); err != nil {
 		return nil, err
 	}
 	return p, nil
