@@ -250,50 +250,34 @@ func (kt *kinTangent) massMatrix(m *Model, lay *layout, k *kinematics, dm *model
 // so they are computed once per pass and step.
 type biasPrimal struct {
 	bvel, acc, moving []motion
-	iv                []force // I·vel
-	frc               []force // body forces after the backward accumulation
+	iv                []force   // I·vel
+	frc               []force   // body forces after the backward accumulation
+	c                 []float64 // the pass's bias (unused by the tangent; the recursion writes it)
 }
 
-func newBiasPrimal(nb int) *biasPrimal {
+func newBiasPrimal(nb, nv int) *biasPrimal {
 	return &biasPrimal{bvel: make([]motion, nb), acc: make([]motion, nb), moving: make([]motion, nb),
-		iv: make([]force, nb), frc: make([]force, nb)}
+		iv: make([]force, nb), frc: make([]force, nb), c: make([]float64, nv)}
 }
 
-// compute evaluates the pass at joint velocities v and time t, mirroring
-// kinematics.inverseDynamics with zero acceleration.
+// compute evaluates the pass at joint velocities v and time t by the
+// simulator's own recursion (kinematics.inverseDynamics with zero
+// acceleration) and keeps what the tangent needs.
 func (bp *biasPrimal) compute(m *Model, lay *layout, k *kinematics, v []float64, t float64) {
+	k.inverseDynamics(m, lay, v, nil, t, bp.c)
+	copy(bp.bvel, k.bvel)
+	copy(bp.acc, k.acc)
+	copy(bp.frc, k.frc)
 	for i := range m.Bodies {
 		bl := &lay.bodies[i]
-		var pa, pv motion
-		if bl.parent >= 0 {
-			pa, pv = bp.acc[bl.parent], bp.bvel[bl.parent]
-		} else {
-			pa = motion{v: r3.Scale(-1, m.Gravity)}
-		}
-		var vj, moving motion
+		var moving motion
 		for d := 0; d < bl.nv; d++ {
-			x := k.s[bl.vOff+d].scale(v[bl.vOff+d])
-			vj = vj.add(x)
 			if !(m.Bodies[i].Joint.Kind == Free && d >= 3) {
-				moving = moving.add(x)
+				moving = moving.add(k.s[bl.vOff+d].scale(v[bl.vOff+d]))
 			}
 		}
-		vel := pv.add(vj)
-		bp.bvel[i], bp.moving[i] = vel, moving
-		bp.acc[i] = pa.add(vel.crossM(moving))
-		bp.iv[i] = k.in[i].apply(vel)
-		bp.frc[i] = k.in[i].apply(bp.acc[i]).add(vel.crossF(bp.iv[i]))
-	}
-	for li := range m.Loads {
-		l := &m.Loads[li]
-		f, tq := l.At(t)
-		p := k.pose[l.Body].Apply(l.Point)
-		bp.frc[l.Body] = bp.frc[l.Body].sub(force{n: r3.Add(tq, r3.Cross(p, f)), f: f})
-	}
-	for i := len(m.Bodies) - 1; i >= 0; i-- {
-		if p := lay.bodies[i].parent; p >= 0 {
-			bp.frc[p] = bp.frc[p].add(bp.frc[i])
-		}
+		bp.moving[i] = moving
+		bp.iv[i] = k.in[i].apply(bp.bvel[i])
 	}
 }
 

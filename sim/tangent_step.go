@@ -42,7 +42,7 @@ func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 	}
 	mk := func() []float64 { return make([]float64, nv) }
 	for p := range t.passes {
-		t.passes[p] = newBiasPrimal(len(s.model.Bodies))
+		t.passes[p] = newBiasPrimal(len(s.model.Bodies), nv)
 		t.vargs[p] = mk()
 	}
 	t.dmass = make([]float64, s.lay.massLen)
