@@ -188,7 +188,11 @@ func (c *Calibration) ReportFiles(info ReportInfo) (map[string][]byte, error) {
 		return nil
 	}
 	if len(c.History) > 0 {
-		if err := addPlot("loss.png", c.lossPlot(), 6*vg.Inch, 3.5*vg.Inch); err != nil {
+		lp, err := c.lossPlot()
+		if err != nil {
+			return nil, err
+		}
+		if err := addPlot("loss.png", lp, 6*vg.Inch, 3.5*vg.Inch); err != nil {
 			return nil, err
 		}
 		if err := addPlot("parameters.png", c.paramPlot(), 6*vg.Inch, 3.5*vg.Inch); err != nil {
@@ -254,21 +258,32 @@ var palette = []color.Color{
 	color.RGBA{R: 0xb8, G: 0x8a, B: 0x00, A: 0xff},
 }
 
-func (c *Calibration) lossPlot() *plot.Plot {
+// historyPlot draws a positive quantity per step on a log scale.
+func historyPlot(title, xLabel, yLabel string, pts plotter.XYs) (*plot.Plot, error) {
 	p := plot.New()
-	p.Title.Text = "Loss per accepted step"
-	p.X.Label.Text = "step (all smoothing stages)"
-	p.Y.Label.Text = "½‖r‖² (whitened)"
+	p.Title.Text = title
+	p.X.Label.Text = xLabel
+	p.Y.Label.Text = yLabel
 	p.Y.Scale = plot.LogScale{}
 	p.Y.Tick.Marker = plot.LogTicks{Prec: 1}
-	var pts plotter.XYs
-	for i, h := range c.History {
-		pts = append(pts, plotter.XY{X: float64(i), Y: math.Max(h.Loss, 1e-300)})
+	for i := range pts {
+		pts[i].Y = math.Max(pts[i].Y, 1e-300)
 	}
-	l, s, _ := plotter.NewLinePoints(pts)
+	l, s, err := plotter.NewLinePoints(pts)
+	if err != nil {
+		return nil, err
+	}
 	l.Color, s.Color = palette[0], palette[0]
 	p.Add(l, s)
-	return p
+	return p, nil
+}
+
+func (c *Calibration) lossPlot() (*plot.Plot, error) {
+	var pts plotter.XYs
+	for i, h := range c.History {
+		pts = append(pts, plotter.XY{X: float64(i), Y: h.Loss})
+	}
+	return historyPlot("Loss per accepted step", "step (all smoothing stages)", "½‖r‖² (whitened)", pts)
 }
 
 func (c *Calibration) paramPlot() *plot.Plot {

@@ -123,23 +123,11 @@ func (r *TuneResult) JSON(t *Tuner, info TuneReportInfo, plots []string) ([]byte
 }
 
 func (r *TuneResult) costPlot() (*plot.Plot, error) {
-	p := plot.New()
-	p.Title.Text = "Mean task cost per accepted step"
-	p.X.Label.Text = "iteration"
-	p.Y.Label.Text = "cost"
-	p.Y.Scale = plot.LogScale{}
-	p.Y.Tick.Marker = plot.LogTicks{Prec: 1}
 	var pts plotter.XYs
 	for _, h := range r.History {
-		pts = append(pts, plotter.XY{X: float64(h.Iter), Y: math.Max(h.Cost, 1e-300)})
+		pts = append(pts, plotter.XY{X: float64(h.Iter), Y: h.Cost})
 	}
-	l, s, err := plotter.NewLinePoints(pts)
-	if err != nil {
-		return nil, err
-	}
-	l.Color, s.Color = palette[0], palette[0]
-	p.Add(l, s)
-	return p, nil
+	return historyPlot("Mean task cost per accepted step", "iteration", "cost", pts)
 }
 
 // trackingPlot draws one joint before and after tuning, with its
