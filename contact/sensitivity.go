@@ -91,6 +91,9 @@ func (r *Sensitivity) Bytes() int {
 	return 8*(len(r.lam)+len(r.mu)+len(r.k)+len(r.lu)) + 8*len(r.piv) + 24
 }
 
+// HasFactors reports whether the record keeps the factors of W + K.
+func (r *Sensitivity) HasFactors() bool { return len(r.lu) > 0 }
+
 // Lambda returns the recorded solution (not a copy).
 func (r *Sensitivity) Lambda() []float64 { return r.lam }
 

@@ -3,6 +3,9 @@ package sim
 import (
 	"fmt"
 	"math"
+	"unsafe"
+
+	"stickslip/contact"
 )
 
 // Reverse sweeps: the gradient of a scalar loss of the final state by the
@@ -10,18 +13,35 @@ import (
 //
 //	ā_T = ∂L/∂x_T,  θ̄ += Φ_θ,kᵀ ā_k,  ā_{k−1} = Φ_x,kᵀ ā_k,
 //
-// where Φ_x,k and Φ_θ,k are the step Jacobians of x_k = Φ(x_{k−1}, θ), and
-// x = (q, v). Each step's Jacobians are built by the exact tangent step
-// (tangent.go) seeded with the state basis and the parameter directions,
-// and kept on a tape; the backward pass then needs only matrix–vector
-// products. With checkpointing the tape keeps states every ⌈√T⌉ steps and
-// rebuilds each segment's Jacobians during the backward pass, so memory
-// grows like √T; the gradient is bit-identical.
+// where x_k = Φ(x_{k−1}, θ) is one step and x = (q, v). The products with
+// the transposed step Jacobians are computed without forming them, by the
+// adjoint of each stage of the step (adjoint_step.go, adjoint_kin.go): the
+// integrator, the contact solve (one transposed solve with the reduced
+// Jacobian of its optimality conditions, contact.Sensitivity), the contact
+// geometry (contact.PointTangentAdjoint), the Delassus operator, the
+// midpoint Newton–Euler passes, the controller, the mass matrix and the
+// kinematics. The cost of a backward step is thus independent of the number
+// of parameters.
+//
+// The tape keeps, per step, the start state, the midpoint velocities, the
+// post-step velocity, the contacts and joint-limit rows with the shapes'
+// poses, and the contact solve's compact sensitivity record (the solution
+// and the block-diagonal part of the reduced Jacobian, O(rows) numbers) —
+// never the solver's iterations. The backward pass recomputes the cheap
+// smooth quantities of a step (kinematics, mass matrix and its factors,
+// the controller, Newton–Euler passes at the recorded velocities) and the
+// Delassus operator, and factors the reduced Jacobian once.
+// ReverseOptions.KeepFactors keeps that factorization on the tape instead
+// (n² numbers per step): less time, more memory. With checkpointing the
+// tape keeps states every ⌈√T⌉ steps and re-records each segment during the
+// backward pass, so memory grows like √T; the gradient is bit-identical.
 
 // ReverseOptions configure a reverse sweep.
 type ReverseOptions struct {
 	// Checkpoint trades recomputation for memory (see above).
 	Checkpoint bool
+	// KeepFactors keeps each step's factored reduced Jacobian on the tape.
+	KeepFactors bool
 }
 
 // ReverseResult is the outcome of a reverse sweep.
@@ -31,9 +51,91 @@ type ReverseResult struct {
 	TapeBytes int
 }
 
-// stepJac is one step's Jacobians, column major: column c of Φ_x (c < nx)
-// and of Φ_θ (c ≥ nx), each nx long.
-type stepJac []float64
+// stepRecord is one step on the tape.
+type stepRecord struct {
+	q0, v0    []float64
+	t         float64
+	vpass     [midpointPasses + 1][]float64
+	v         []float64 // after the contact solve
+	contacts  []Contact
+	limits    []limitRow
+	geomPoses []contact.Pose
+	sens      contact.Sensitivity
+	solved    bool // whether the step had a contact problem
+}
+
+var contactBytes = int(unsafe.Sizeof(Contact{}))
+
+func (r *stepRecord) bytes() int {
+	b := 8 * (len(r.q0) + len(r.v0) + len(r.v) + 1)
+	for _, p := range r.vpass {
+		b += 8 * len(p)
+	}
+	b += len(r.contacts)*contactBytes + len(r.limits)*int(unsafe.Sizeof(limitRow{})) + len(r.geomPoses)*int(unsafe.Sizeof(contact.Pose{}))
+	if r.solved {
+		b += r.sens.Bytes()
+	}
+	return b
+}
+
+// recordStep takes one step and writes what its adjoint needs into r.
+func (s *Sim) recordStep(r *stepRecord, keep bool) error {
+	r.q0 = append(r.q0[:0], s.q...)
+	r.v0 = append(r.v0[:0], s.v...)
+	r.t = s.t
+	if err := s.Step(); err != nil {
+		return err
+	}
+	for p := range r.vpass {
+		r.vpass[p] = append(r.vpass[p][:0], s.vpass[p]...)
+	}
+	r.v = append(r.v[:0], s.v...)
+	r.contacts = append(r.contacts[:0], s.contacts...)
+	r.limits = append(r.limits[:0], s.limits...)
+	r.geomPoses = append(r.geomPoses[:0], s.geomPoses...)
+	r.solved = len(s.contacts)+len(s.limits) > 0
+	if r.solved {
+		if err := s.solver.Record(&r.sens, keep); err != nil {
+			return s.stepError(err)
+		}
+	}
+	return nil
+}
+
+// prime restores the primal intermediates of the recorded step into s, as
+// Step left them before its integration, for the step's adjoint.
+func (s *Sim) prime(r *stepRecord) error {
+	copy(s.q, r.q0)
+	copy(s.v, r.v0)
+	copy(s.q0, r.q0)
+	copy(s.v0, r.v0)
+	s.t = r.t
+	s.kin.update(s.model, s.lay, s.q, s.v)
+	if err := s.factorMass(); err != nil {
+		return err
+	}
+	for p := range r.vpass {
+		copy(s.vpass[p], r.vpass[p])
+	}
+	copy(s.vfree, r.vpass[midpointPasses])
+	s.contacts = append(s.contacts[:0], r.contacts...)
+	s.limits = append(s.limits[:0], r.limits...)
+	copy(s.geomPoses, r.geomPoses)
+	if r.solved {
+		n := 3*len(s.contacts) + len(s.limits)
+		s.buildRows(n)
+		copy(s.lambda, r.sens.Lambda())
+		if n0, _ := r.sens.Size(); n0 != n {
+			return fmt.Errorf("tape: step at t = %g has %d rows, its record %d", r.t, n, n0)
+		}
+		if !r.sens.HasFactors() {
+			// The VJP assembles and factors W + K afresh.
+			s.buildDelassus(n)
+		}
+	}
+	copy(s.v, r.v)
+	return nil
+}
 
 type stateCopy struct {
 	q, v []float64
@@ -53,67 +155,31 @@ func (s *Sim) restoreState(c stateCopy) {
 	s.kin.update(s.model, s.lay, s.q, s.v)
 }
 
-// localSweep returns tangent machinery whose columns are the nx state basis
-// directions followed by the parameters.
-func (s *Sim) localSweep(params []Param) *tangentSweep {
-	return newTangentColumns(s, s.lay.nq+s.lay.nv, params)
-}
-
-// reseed resets the columns to the state basis and the parameter seeds.
-func (t *tangentSweep) reseed(nq, nv int) {
-	nx := nq + nv
-	for c := range t.dq {
-		clear(t.dq[c])
-		clear(t.dv[c])
-		if c < nq {
-			t.dq[c][c] = 1
-		} else if c < nx {
-			t.dv[c][c-nq] = 1
-		}
-	}
-}
-
-// stepWithJacobian takes one step and returns its Jacobians.
-func (s *Sim) stepWithJacobian(t *tangentSweep) (stepJac, error) {
-	nq, nv := s.lay.nq, s.lay.nv
-	t.reseed(nq, nv)
-	s.tan = t
-	err := s.Step()
-	s.tan = nil
-	if err != nil {
-		return nil, err
-	}
-	nx := nq + nv
-	jac := make(stepJac, nx*len(t.dq))
-	for c := range t.dq {
-		copy(jac[c*nx:], t.dq[c])
-		copy(jac[c*nx+nq:], t.dv[c])
-	}
-	return jac, nil
-}
-
 // ReverseGradient runs steps time steps from the current state and returns
 // the gradient of L(q_T, v_T) with respect to params, given dL, which
-// writes ∂L/∂q and ∂L/∂v at the final state into gq and gv.
+// writes ∂L/∂q and ∂L/∂v at the final state into gq and gv. The simulator
+// ends in the final state.
 func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []float64), opt ReverseOptions) (*ReverseResult, error) {
-	nq, nv := s.lay.nq, s.lay.nv
-	nx := nq + nv
 	np := len(params)
-	t := s.localSweep(params)
-	// The initial state's dependence on start.* parameters.
+	// The initial state's dependence on start.* parameters and each
+	// parameter's direction in the model.
 	seeds := newTangents(s, params)
+	adj := newStepAdjoint(s, params)
 	res := &ReverseResult{Gradient: make([]float64, np)}
-	jacBytes := 8 * nx * (nx + np)
 
 	seg := steps
 	if opt.Checkpoint {
-		seg = int(math.Ceil(math.Sqrt(float64(steps))))
-		if seg < 1 {
-			seg = 1
-		}
+		seg = max(int(math.Ceil(math.Sqrt(float64(steps)))), 1)
 	}
 	var checkpoints []stateCopy
-	var tape []stepJac
+	tape := make([]stepRecord, min(seg, steps))
+	tapeBytes := func(n int) int {
+		b := 0
+		for k := range n {
+			b += tape[k].bytes()
+		}
+		return b
+	}
 	for k := 0; k < steps; k++ {
 		if opt.Checkpoint {
 			if k%seg == 0 {
@@ -124,72 +190,53 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 			}
 			continue
 		}
-		j, err := s.stepWithJacobian(t)
-		if err != nil {
+		if err := s.recordStep(&tape[k], opt.KeepFactors); err != nil {
 			return nil, err
 		}
-		tape = append(tape, j)
 	}
-	if !opt.Checkpoint {
-		res.TapeBytes = len(tape) * jacBytes
-	}
-	adj := make([]float64, nx)
-	dL(s.q, s.v, adj[:nq], adj[nq:])
-	next := make([]float64, nx)
-	back := func(j stepJac) {
-		// θ̄ += Φ_θᵀ ā;  ā ← Φ_xᵀ ā.
-		for p := 0; p < np; p++ {
-			col := j[(nx+p)*nx : (nx+p+1)*nx]
-			var sum float64
-			for i, a := range adj {
-				sum += col[i] * a
+	end := s.saveState()
+	dL(s.q, s.v, adj.qBar, adj.vBar)
+	back := func(n int) error {
+		for k := n - 1; k >= 0; k-- {
+			if err := s.prime(&tape[k]); err != nil {
+				return err
 			}
-			res.Gradient[p] += sum
-		}
-		for c := 0; c < nx; c++ {
-			col := j[c*nx : (c+1)*nx]
-			var sum float64
-			for i, a := range adj {
-				sum += col[i] * a
+			if err := adj.step(s, &tape[k].sens); err != nil {
+				return s.stepError(err)
 			}
-			next[c] = sum
 		}
-		copy(adj, next)
+		return nil
 	}
 	if opt.Checkpoint {
-		end := s.saveState()
 		for c := len(checkpoints) - 1; c >= 0; c-- {
 			s.restoreState(checkpoints[c])
 			n := min(seg, steps-c*seg)
-			segTape := make([]stepJac, 0, n)
 			for k := 0; k < n; k++ {
-				j, err := s.stepWithJacobian(t)
-				if err != nil {
+				if err := s.recordStep(&tape[k], opt.KeepFactors); err != nil {
 					return nil, fmt.Errorf("recomputing checkpoint segment %d: %w", c, err)
 				}
-				segTape = append(segTape, j)
 			}
-			res.TapeBytes = max(res.TapeBytes, len(segTape)*jacBytes+len(checkpoints)*8*nx)
-			for k := len(segTape) - 1; k >= 0; k-- {
-				back(segTape[k])
+			res.TapeBytes = max(res.TapeBytes, tapeBytes(n)+len(checkpoints)*8*(len(s.q)+len(s.v)))
+			if err := back(n); err != nil {
+				return nil, err
 			}
 		}
-		s.restoreState(end)
 	} else {
-		for k := len(tape) - 1; k >= 0; k-- {
-			back(tape[k])
+		res.TapeBytes = tapeBytes(steps)
+		if err := back(steps); err != nil {
+			return nil, err
 		}
 	}
-	// Initial-state seeds of start.* parameters.
+	s.restoreState(end)
 	for p := 0; p < np; p++ {
-		var sum float64
-		for i := 0; i < nq; i++ {
-			sum += seeds.dq[p][i] * adj[i]
+		g := adj.ctlBar[p] + seeds.dm[p].dot(adj.gb)
+		for i, x := range seeds.dq[p] {
+			g += x * adj.qBar[i]
 		}
-		for i := 0; i < nv; i++ {
-			sum += seeds.dv[p][i] * adj[nq+i]
+		for i, x := range seeds.dv[p] {
+			g += x * adj.vBar[i]
 		}
-		res.Gradient[p] += sum
+		res.Gradient[p] = g
 	}
 	return res, nil
 }

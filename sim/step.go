@@ -437,6 +437,27 @@ func (s *Sim) solveMass(x []float64) {
 	}
 }
 
+// factorMass evaluates the controller and factors the per-tree blocks of
+// A = M + h(D + K_d) + h² K_p at the current state.
+func (s *Sim) factorMass() error {
+	m, lay, h := s.model, s.lay, s.set.TimeStep
+	s.control()
+	s.kin.massMatrix(m, lay, s.mass)
+	copy(s.chol, s.mass)
+	for t := range lay.trees {
+		tr := &lay.trees[t]
+		blk := s.chol[tr.massOffset : tr.massOffset+tr.nv*tr.nv]
+		for d := 0; d < tr.nv; d++ {
+			i := tr.vOff + d
+			blk[d*tr.nv+d] += h*(s.damp[i]+s.kd[i]) + h*h*s.kp[i]
+		}
+		if !cholesky(blk, tr.nv) {
+			return s.stepError(fmt.Errorf("mass matrix of the tree rooted at body %q is not positive definite", m.Bodies[tr.bodies[0]].Name))
+		}
+	}
+	return nil
+}
+
 // Step advances the simulation by one time step:
 //
 //	(M + hD)(v⁺ − v) = h(τ − c(q, v̄) − D v) + Jᵀλ,   q⁺ = q ⊕ h v⁺,
@@ -453,19 +474,8 @@ func (s *Sim) Step() error {
 	}
 	copy(s.q0, s.q)
 	copy(s.v0, s.v)
-	s.control()
-	kin.massMatrix(m, lay, s.mass)
-	copy(s.chol, s.mass)
-	for t := range lay.trees {
-		tr := &lay.trees[t]
-		blk := s.chol[tr.massOffset : tr.massOffset+tr.nv*tr.nv]
-		for d := 0; d < tr.nv; d++ {
-			i := tr.vOff + d
-			blk[d*tr.nv+d] += h*(s.damp[i]+s.kd[i]) + h*h*s.kp[i]
-		}
-		if !cholesky(blk, tr.nv) {
-			return s.stepError(fmt.Errorf("mass matrix of the tree rooted at body %q is not positive definite", m.Bodies[tr.bodies[0]].Name))
-		}
+	if err := s.factorMass(); err != nil {
+		return err
 	}
 
 	// Free velocity: the smooth dynamics, with velocity-product terms at
@@ -649,6 +659,52 @@ func (s *Sim) solveContacts() error {
 	nv := s.lay.nv
 	nc := len(s.contacts)
 	n := 3*nc + len(s.limits)
+	s.buildRows(n)
+	s.buildDelassus(n)
+	s.prob.W = &s.w
+	s.prob.NumCones = nc
+	stats, err := s.solver.Solve(&s.prob, s.set.Solver, s.lambda)
+	s.lastStats = stats
+	if err != nil {
+		return s.stepError(err)
+	}
+	// v⁺ = v_free + Y λ; u = W λ + B.
+	copy(s.v, s.vfree)
+	for r := 0; r < n; r++ {
+		l := s.lambda[r]
+		if l == 0 {
+			continue
+		}
+		yr := s.y[r*nv : (r+1)*nv]
+		for d := range s.v {
+			s.v[d] += yr[d] * l
+		}
+	}
+	for i := 0; i < n; i++ {
+		u := s.prob.B[i]
+		for j := 0; j < n; j++ {
+			u += s.w.At(i, j) * s.lambda[j]
+		}
+		s.u[i] = u
+	}
+	for k := range s.contacts {
+		c := &s.contacts[k]
+		copy(c.Impulse[:], s.lambda[3*k:3*k+3])
+		copy(c.Velocity[:], s.u[3*k:3*k+3])
+		c.Velocity[0] += c.Target
+	}
+	for k := range s.limits {
+		s.limits[k].force = s.lambda[3*nc+k]
+	}
+	return nil
+}
+
+// buildRows fills the n contact-problem rows of the Jacobian, the trees and
+// coordinate ranges they touch, the contacts' normal velocity targets and
+// friction coefficients.
+func (s *Sim) buildRows(n int) {
+	nv := s.lay.nv
+	nc := len(s.contacts)
 	h := s.set.TimeStep
 	s.jac = grow(s.jac, n*nv)
 	s.y = grow(s.y, n*nv)
@@ -703,6 +759,13 @@ func (s *Sim) solveContacts() error {
 		s.rowTrees[r] = [2]int{t, t}
 	}
 	s.setRowRanges(n)
+}
+
+// buildDelassus computes Y = A⁻¹ Jᵀ, the Delassus operator W = J Y and
+// B = J v_free − target for the rows of buildRows.
+func (s *Sim) buildDelassus(n int) {
+	nv := s.lay.nv
+	nc := len(s.contacts)
 	// Y = A⁻¹ Jᵀ, row by row, solving only in the trees a row touches.
 	copy(s.y, s.jac)
 	for r := 0; r < n; r++ {
@@ -749,42 +812,6 @@ func (s *Sim) solveContacts() error {
 		}
 		s.prob.B[i] = b
 	}
-	s.prob.W = &s.w
-	s.prob.NumCones = nc
-	stats, err := s.solver.Solve(&s.prob, s.set.Solver, s.lambda)
-	s.lastStats = stats
-	if err != nil {
-		return s.stepError(err)
-	}
-	// v⁺ = v_free + Y λ; u = W λ + B.
-	copy(s.v, s.vfree)
-	for r := 0; r < n; r++ {
-		l := s.lambda[r]
-		if l == 0 {
-			continue
-		}
-		yr := s.y[r*nv : (r+1)*nv]
-		for d := range s.v {
-			s.v[d] += yr[d] * l
-		}
-	}
-	for i := 0; i < n; i++ {
-		u := s.prob.B[i]
-		for j := 0; j < n; j++ {
-			u += s.w.At(i, j) * s.lambda[j]
-		}
-		s.u[i] = u
-	}
-	for k := range s.contacts {
-		c := &s.contacts[k]
-		copy(c.Impulse[:], s.lambda[3*k:3*k+3])
-		copy(c.Velocity[:], s.u[3*k:3*k+3])
-		c.Velocity[0] += c.Target
-	}
-	for k := range s.limits {
-		s.limits[k].force = s.lambda[3*nc+k]
-	}
-	return nil
 }
 
 // gapTarget returns the least normal velocity a row may have: it may close

@@ -111,19 +111,24 @@ func checkSweepFrom(t *testing.T, m *Model, set Settings, names []string, from f
 	}
 }
 
-func TestSweepFreeFlight(t *testing.T) {
-	// No contact: gravity, gyroscopic terms, start state, mass properties.
+// spinningPuck is a box in free flight, spinning about all three axes,
+// pushed off its centre of mass.
+func spinningPuck() *Model {
 	b := boxBody("puck", 2, r3.Vec{X: 0.4, Y: 0.25, Z: 0.1}, contact.Pose{Pos: r3.Vec{Z: 5}, Rot: contact.QuatFromAxisAngle(r3.Vec{X: 1, Y: 1}, 0.4)})
 	b.Start.Angular = r3.Vec{X: 0.5, Y: 3, Z: 1}
 	b.Start.Linear = r3.Vec{X: 1}
 	b.COM = r3.Vec{X: 0.02}
-	m := &Model{Gravity: down, Bodies: []Body{b}, Loads: []Load{{Body: 0, Point: r3.Vec{X: 0.1}, Force: r3.Vec{Y: 3}}}}
-	checkSweep(t, m, Settings{}, []string{"gravity.z", "mass:puck", "inertia.y:puck", "com.x:puck",
+	return &Model{Gravity: down, Bodies: []Body{b}, Loads: []Load{{Body: 0, Point: r3.Vec{X: 0.1}, Force: r3.Vec{Y: 3}}}}
+}
+
+func TestSweepFreeFlight(t *testing.T) {
+	// No contact: gravity, gyroscopic terms, start state, mass properties.
+	checkSweep(t, spinningPuck(), Settings{}, []string{"gravity.z", "mass:puck", "inertia.y:puck", "com.x:puck",
 		"start.vx:puck", "start.wy:puck", "start.z:puck"}, []float64{0.1, 0.3}, 1e-5)
 }
 
-func TestSweepArm(t *testing.T) {
-	// Joints, PD controller, damping, armature and joint friction.
+// lossyArm is the PD arm with damping, armature and joint friction.
+func lossyArm() *Model {
 	m := pdArm(200, []float64{0.3, -0.4, 0.5})
 	for i := range m.Bodies {
 		m.Bodies[i].Joint.Damping = 0.3
@@ -131,7 +136,12 @@ func TestSweepArm(t *testing.T) {
 		m.Bodies[i].Joint.Friction = 0.2
 		m.Bodies[i].Joint.Position = 0
 	}
-	checkSweep(t, m, Settings{}, []string{"kp:motor1", "kd:motor2", "damping:link2-joint", "armature:link1-joint",
+	return m
+}
+
+func TestSweepArm(t *testing.T) {
+	// Joints, PD controller, damping, armature and joint friction.
+	checkSweep(t, lossyArm(), Settings{}, []string{"kp:motor1", "kd:motor2", "damping:link2-joint", "armature:link1-joint",
 		"joint-friction:link3-joint", "mass:link2", "start.q:link1-joint", "start.qd:link3-joint", "gravity.z"}, []float64{0.05, 0.2}, 1e-5)
 }
 
@@ -168,11 +178,15 @@ func TestSweepSlidingMassHasNoEffect(t *testing.T) {
 	}
 }
 
-func TestSweepBallDrop(t *testing.T) {
-	m := &Model{Gravity: down, Static: []StaticShape{floor(0)},
+// bouncingBall is a ball dropped on the floor with restitution 0.7.
+func bouncingBall() *Model {
+	return &Model{Gravity: down, Static: []StaticShape{floor(0)},
 		Bodies:    []Body{sphereBody("ball", 0.06, 0.05, r3.Vec{Z: 0.3})},
 		Materials: Materials{Default: PairProps{Friction: 0.5}, Pairs: []MaterialPair{{A: "test", B: "ground", PairProps: PairProps{Friction: 0.5, Restitution: 0.7}}}}}
-	checkSweep(t, m, Settings{}, []string{"restitution:test/ground", "start.z:ball", "start.vx:ball"}, []float64{0.3}, 1e-5)
+}
+
+func TestSweepBallDrop(t *testing.T) {
+	checkSweep(t, bouncingBall(), Settings{}, []string{"restitution:test/ground", "start.z:ball", "start.vx:ball"}, []float64{0.3}, 1e-5)
 }
 
 // matCol wraps a slice as an n×1 matrix for fd.Jacobian.
@@ -186,11 +200,16 @@ func TestSweepIncline(t *testing.T) {
 	checkSweep(t, m, Settings{}, []string{"friction:pine/oak", "gravity.z", "gravity.y"}, []float64{0.1, 0.3}, 1e-5)
 }
 
-func TestSweepRollingBall(t *testing.T) {
+// rollingBall is a ball launched without spin: it slides, then rolls.
+func rollingBall() *Model {
 	b := sphereBody("ball", 0.5, 0.1, r3.Vec{Z: 0.1})
 	b.Start.Linear = r3.Vec{X: 3}
-	m := &Model{Gravity: down, Static: []StaticShape{floor(0)}, Bodies: []Body{b},
+	return &Model{Gravity: down, Static: []StaticShape{floor(0)}, Bodies: []Body{b},
 		Materials: Materials{Pairs: []MaterialPair{{A: "test", B: "ground", PairProps: PairProps{Friction: 0.3}}}}}
+}
+
+func TestSweepRollingBall(t *testing.T) {
+	m := rollingBall()
 	// Sliding phase (first 0.2 s) and rolling phase (after 0.35 s).
 	checkSweep(t, m, Settings{}, []string{"friction:test/ground", "start.vx:ball", "inertia.y:ball"}, []float64{0.1, 0.2}, 1e-5)
 	// Rolling: a horizontal gravity component accelerates it at (5/7) g_x,
@@ -264,13 +283,19 @@ func TestTraceMatchesForwardGradient(t *testing.T) {
 	}
 }
 
-func TestSweepControlInputs(t *testing.T) {
-	// Control inputs: entries of the PD target table and of a feedforward
-	// effort table added to it.
+// scheduledArm is the PD arm following a target table, with a
+// feedforward effort table added.
+func scheduledArm() *Model {
 	m := pdArm(200, []float64{0.3, -0.4, 0.5})
 	pd := m.Controller.(*PD)
 	pd.Targets = Table{Times: []float64{0, 0.1, 0.3}, Values: [][]float64{{0.3, -0.4, 0.5}, {0.5, -0.2, 0.4}, {0.6, -0.1, 0.2}}}
 	m.Controller = Sum{pd, &Feedforward{Efforts: Table{Times: []float64{0, 0.2}, Values: [][]float64{{1, 0, -1}, {2, 1, 0}}}}}
-	checkSweep(t, m, Settings{}, []string{"target.1:motor1", "target.2:motor3", "feedforward.0:motor2", "feedforward.1:motor1"},
+	return m
+}
+
+func TestSweepControlInputs(t *testing.T) {
+	// Control inputs: entries of the PD target table and of a feedforward
+	// effort table added to it.
+	checkSweep(t, scheduledArm(), Settings{}, []string{"target.1:motor1", "target.2:motor3", "feedforward.0:motor2", "feedforward.1:motor1"},
 		[]float64{0.15, 0.35}, 1e-5)
 }

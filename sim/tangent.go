@@ -368,3 +368,27 @@ func normalizeTangent(q, dq contact.Quat) contact.Quat {
 func quatAdd(a, b contact.Quat) contact.Quat {
 	return contact.Quat{W: a.W + b.W, X: a.X + b.X, Y: a.Y + b.Y, Z: a.Z + b.Z}
 }
+
+// dot returns the pairing of two model tangents, field by field: with one
+// of them a parameter's seed it reads that parameter's entry of the other.
+func (dm *modelTangent) dot(o *modelTangent) float64 {
+	s := r3.Dot(dm.gravity, o.gravity)
+	sum := func(a, b []float64) {
+		for i, x := range a {
+			s += x * b[i]
+		}
+	}
+	sum(dm.mass, o.mass)
+	for i := range dm.com {
+		s += r3.Dot(dm.com[i], o.com[i])
+		s += frob(dm.inertia[i], o.inertia[i])
+	}
+	sum(dm.damping, o.damping)
+	sum(dm.friction, o.friction)
+	sum(dm.armature, o.armature)
+	sum(dm.kp, o.kp)
+	sum(dm.kd, o.kd)
+	sum(dm.pairFric, o.pairFric)
+	sum(dm.pairRest, o.pairRest)
+	return s
+}
