@@ -34,16 +34,20 @@ type Twist struct{ V, W r3.Vec }
 // deterministic. A point that Collide could not have produced for these
 // shapes and poses gives zeros.
 func PointTangent(a *Shape, pa Pose, b *Shape, pb Pose, pt Point, ta, tb Twist) (dPos, dNormal r3.Vec, dGap float64) {
+	fa, fb := makeFrame(pa, ta), makeFrame(pb, tb)
+	return pointTangentFrames(a, &fa, b, &fb, pt)
+}
+
+// pointTangentFrames is PointTangent with the posed, moving frames built.
+func pointTangentFrames(a *Shape, fa *tframe, b *Shape, fb *tframe, pt Point) (dPos, dNormal r3.Vec, dGap float64) {
 	if a.Kind > b.Kind {
 		q := pt
 		q.Normal = r3.Scale(-1, pt.Normal)
 		q.Feature = swapFeature(pt.Feature)
-		fb, fa := makeFrame(pb, tb), makeFrame(pa, ta)
-		p, n, g, _ := tangentOrdered(b, &fb, a, &fa, q)
+		p, n, g, _ := tangentOrdered(b, fb, a, fa, q)
 		return p.d, r3.Scale(-1, n.d), g.d
 	}
-	fa, fb := makeFrame(pa, ta), makeFrame(pb, tb)
-	p, n, g, _ := tangentOrdered(a, &fa, b, &fb, pt)
+	p, n, g, _ := tangentOrdered(a, fa, b, fb, pt)
 	return p.d, n.d, g.d
 }
 

@@ -18,8 +18,11 @@ import "gonum.org/v1/gonum/spatial/r3"
 // cylinder, whose GJK points are in some cases approximate (and then not
 // exactly rigid), take all twelve.
 func PointTangentAdjoint(a *Shape, pa Pose, b *Shape, pb Pose, pt Point, posBar, normalBar r3.Vec, gapBar float64) (taBar, tbBar Twist) {
+	// The frames' rotation matrices are built once for all the columns.
+	fa, fb := makeFrame(pa, Twist{}), makeFrame(pb, Twist{})
 	col := func(ta, tb Twist) float64 {
-		dp, dn, dg := PointTangent(a, pa, b, pb, pt, ta, tb)
+		fa.v, fa.w, fb.v, fb.w = ta.V, ta.W, tb.V, tb.W
+		dp, dn, dg := pointTangentFrames(a, &fa, b, &fb, pt)
 		return r3.Dot(posBar, dp) + r3.Dot(normalBar, dn) + gapBar*dg
 	}
 	unit := func(i int) Twist {

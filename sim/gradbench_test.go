@@ -6,7 +6,7 @@ import (
 	"gonum.org/v1/gonum/spatial/r3"
 )
 
-// gradScene is a ten-box stack whose top box is dragged, differentiated
+// gradScene is a four-box stack whose top box is dragged, differentiated
 // with respect to 16 parameters.
 func gradScene() (*Model, []string) {
 	m := stackScene(4)
@@ -24,8 +24,9 @@ const gradSteps = 100
 
 // BenchmarkGradient compares, in one run, a forward rollout, a forward
 // sweep with one tangent column, the reverse-sweep gradient of a 16-
-// parameter loss, and the same gradient by central finite differences
-// (2 × 16 rollouts).
+// parameter loss (the rollout that records the tape plus the backward
+// pass; with and without the factors kept on the tape), and the same
+// gradient by central finite differences (2 × 16 rollouts).
 func BenchmarkGradient(b *testing.B) {
 	m, names := gradScene()
 	params, err := ParseParams(m, names)
@@ -59,18 +60,54 @@ func BenchmarkGradient(b *testing.B) {
 			}
 		}
 	})
-	b.Run("ReverseSweep16", func(b *testing.B) {
-		b.ReportAllocs()
-		var tape int
+	for _, keep := range []bool{false, true} {
+		name := "ReverseSweep16"
+		if keep {
+			name += "KeepFactors"
+		}
+		b.Run(name, func(b *testing.B) {
+			b.ReportAllocs()
+			var tape int
+			for i := 0; i < b.N; i++ {
+				s := mustSim(b, m, Settings{})
+				r, err := s.ReverseGradient(params, gradSteps, halfSquares, ReverseOptions{KeepFactors: keep})
+				if err != nil {
+					b.Fatal(err)
+				}
+				tape = r.TapeBytes
+			}
+			b.ReportMetric(float64(tape)/gradSteps, "tape-B/step")
+		})
+	}
+	b.Run("UnrolledTapeLowerBound", func(b *testing.B) {
+		// Differentiating the same rollout by unrolling the interior-point
+		// iterations would keep, besides this tape's per-step data, the
+		// factors of every Newton matrix the solver formed (n² numbers and
+		// n pivots per factorization) and every iterate (λ and y, n each,
+		// and β per contact). This counts that least amount from the
+		// solver's own statistics on the rollout; the baseline itself (its
+		// backward pass) is not built.
+		var ours, unrolled int
 		for i := 0; i < b.N; i++ {
 			s := mustSim(b, m, Settings{})
-			r, err := s.ReverseGradient(params, gradSteps, halfSquares, ReverseOptions{})
-			if err != nil {
-				b.Fatal(err)
+			ours, unrolled = 0, 0
+			var rec stepRecord
+			for k := 0; k < gradSteps; k++ {
+				if err := s.recordStep(&rec, false); err != nil {
+					b.Fatal(err)
+				}
+				st := s.SolveStats()
+				n, nc := rec.sens.Size()
+				if !rec.solved {
+					n, nc = 0, 0
+				}
+				ours += rec.bytes()
+				unrolled += rec.bytes() - rec.sens.Bytes() + st.Factorizations*(8*n*n+8*n) + st.Iterations*8*(2*n+nc)
 			}
-			tape = r.TapeBytes
 		}
-		b.ReportMetric(float64(tape)/gradSteps, "tape-B/step")
+		b.ReportMetric(float64(ours)/gradSteps, "tape-B/step")
+		b.ReportMetric(float64(unrolled)/gradSteps, "unrolled-min-B/step")
+		b.ReportMetric(float64(unrolled)/float64(ours), "ratio")
 	})
 	b.Run("ForwardSweep16", func(b *testing.B) {
 		b.ReportAllocs()
