@@ -184,6 +184,36 @@ func luSolve(lu []float64, n int, piv []int, b []float64) {
 	}
 }
 
+// luSolveTrans overwrites b with the solution of Aᵀ x = b for the factors
+// of luSolve (lapack64.Getrs with blas.Trans for one right-hand side):
+// with P A = L U, Aᵀ = Uᵀ Lᵀ P.
+func luSolveTrans(lu []float64, n int, piv []int, b []float64) {
+	// Uᵀ z = b, by columns of Uᵀ: the contiguous rows of U.
+	for i := range n {
+		row := lu[i*n : (i+1)*n]
+		b[i] /= row[i]
+		if zi := b[i]; zi != 0 {
+			for j := i + 1; j < n; j++ {
+				b[j] -= zi * row[j]
+			}
+		}
+	}
+	// Lᵀ w = z (unit diagonal), by columns of Lᵀ: the rows of L.
+	for i := n - 1; i > 0; i-- {
+		if wi := b[i]; wi != 0 {
+			row := lu[i*n : i*n+i]
+			for j := range row {
+				b[j] -= row[j] * wi
+			}
+		}
+	}
+	for i := n - 1; i >= 0; i-- {
+		if p := piv[i]; p != i {
+			b[i], b[p] = b[p], b[i]
+		}
+	}
+}
+
 // dot returns xᵀy for len(x) = len(y).
 func dot(x, y []float64) float64 {
 	return blas64.Dot(blas64.Vector{N: len(x), Inc: 1, Data: x}, blas64.Vector{N: len(x), Inc: 1, Data: y})

@@ -209,8 +209,7 @@ func (f recordFactor) SolveTo(dst, b []float64) error {
 
 func (f recordFactor) SolveTransTo(dst, b []float64) error {
 	copy(dst, b)
-	lapack64.Getrs(blas.Trans, blas64.General{Rows: f.n, Cols: f.n, Stride: f.n, Data: f.lu},
-		blas64.General{Rows: f.n, Cols: 1, Stride: 1, Data: dst}, f.piv)
+	luSolveTrans(f.lu, f.n, f.piv, dst)
 	return nil
 }
 

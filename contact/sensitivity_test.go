@@ -4,6 +4,10 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // TestSensitivityMatchesSolver checks that a compact record, with and
@@ -69,6 +73,35 @@ func TestSensitivityMatchesSolver(t *testing.T) {
 		}
 		if err := compact.VJP(nil, make([]float64, n), nil, lbar); err == nil {
 			t.Error("a compact record without W: no error")
+		}
+	}
+}
+
+// TestLUSolveTrans checks the transposed LU solve against gonum's
+// lapack64.Getrs with blas.Trans on random matrices.
+func TestLUSolveTrans(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	for _, n := range []int{1, 2, 5, 17, 48} {
+		a := make([]float64, n*n)
+		for i := range a {
+			a[i] = rng.NormFloat64()
+		}
+		piv := make([]int, n)
+		if !lapack64.Getrf(blas64.General{Rows: n, Cols: n, Stride: n, Data: a}, piv) {
+			t.Fatalf("n = %d: singular", n)
+		}
+		b := make([]float64, n)
+		for i := range b {
+			b[i] = rng.NormFloat64()
+		}
+		want := append([]float64(nil), b...)
+		lapack64.Getrs(blas.Trans, blas64.General{Rows: n, Cols: n, Stride: n, Data: a}, blas64.General{Rows: n, Cols: 1, Stride: 1, Data: want}, piv)
+		got := append([]float64(nil), b...)
+		luSolveTrans(a, n, piv, got)
+		for i := range got {
+			if math.Abs(got[i]-want[i]) > 1e-11*(1+math.Abs(want[i])) {
+				t.Errorf("n = %d: x[%d] = %.15g, Getrs %.15g", n, i, got[i], want[i])
+			}
 		}
 	}
 }

@@ -5,8 +5,6 @@ import (
 
 	"stickslip/implicit"
 
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -151,7 +149,7 @@ func (f jacFactor) SolveTo(dst, b []float64) error {
 
 func (f jacFactor) SolveTransTo(dst, b []float64) error {
 	copy(dst, b)
-	lapack64.Getrs(blas.Trans, f.s.general(f.s.jac), blas64.General{Rows: f.s.n, Cols: 1, Stride: 1, Data: dst}, f.s.jpiv)
+	luSolveTrans(f.s.jac, f.s.n, f.s.jpiv, dst)
 	return nil
 }
 
