@@ -56,14 +56,18 @@ func (s *Solver) Record(dst *Sensitivity, factor bool) error {
 	dst.mu = append(dst.mu[:0], s.mu[:nc]...)
 	dst.k = grow(dst.k, perCone*nc+n-3*nc)
 	for c := range nc {
+		if s.mu[c] > 0 && !s.jacReady {
+			xi, eta := s.cone(c)
+			s.hx[c] = arwCoupling(xi, eta)
+		}
+	}
+	for c := range nc {
 		i := 3 * c
 		e := dst.k[perCone*c : perCone*(c+1)]
 		clear(e)
 		e[0] = s.y[i] / s.lam[i]
 		if m := s.mu[c]; m > 0 {
-			xi, eta := s.cone(c)
-			h := arwCoupling(xi, eta)
-			s.hx[c] = h
+			h := &s.hx[c]
 			e[1], e[2], e[3] = m*h[1][0], h[1][1], h[1][2]
 			e[4], e[5], e[6] = m*h[2][0], h[2][1], h[2][2]
 			e[7], e[8] = h[1][0], h[2][0]
@@ -74,11 +78,22 @@ func (s *Solver) Record(dst *Sensitivity, factor bool) error {
 	}
 	dst.lu, dst.piv = dst.lu[:0], dst.piv[:0]
 	if factor {
-		if err := s.factorJacobian(); err != nil {
+		if s.jacReady {
+			dst.lu = append(dst.lu, s.jac[:n*n]...)
+			dst.piv = append(dst.piv, s.jpiv[:n]...)
+			return nil
+		}
+		// Factor W + K straight into the record (the solver's own
+		// derivative methods factor it again if they are called).
+		dst.lu = grow(dst.lu, n*n)
+		if cap(dst.piv) < n {
+			dst.piv = make([]int, n)
+		}
+		dst.piv = dst.piv[:n]
+		if err := s.factorInto(dst.lu, dst.piv); err != nil {
+			dst.lu, dst.piv = dst.lu[:0], dst.piv[:0]
 			return err
 		}
-		dst.lu = append(dst.lu, s.jac[:n*n]...)
-		dst.piv = append(dst.piv, s.jpiv[:n]...)
 	}
 	return nil
 }

@@ -46,23 +46,32 @@ func (s *Solver) factorJacobian() error {
 			s.hx[c] = arwCoupling(xi, eta)
 		}
 	}
-	copy(s.jac, s.wd)
-	s.addBarrier(s.jac, func(c int) *[3][3]float64 { return &s.hx[c] })
-	if !lapack64.Getrf(s.general(s.jac), s.jpiv) {
+	if err := s.factorInto(s.jac, s.jpiv); err != nil {
+		return err
+	}
+	s.jacReady = true
+	return nil
+}
+
+// factorInto assembles W + K from the couplings in s.hx into a and factors
+// it in place (pivots into piv).
+func (s *Solver) factorInto(a []float64, piv []int) error {
+	n := s.n
+	copy(a, s.wd[:n*n])
+	s.addBarrier(a, func(c int) *[3][3]float64 { return &s.hx[c] })
+	if !lapack64.Getrf(s.general(a), piv) {
 		// Singular W with rows whose barrier terms vanished (κ = 0 at
 		// redundant contacts): the minimum-norm-like choice of a tiny
 		// diagonal shift keeps the derivative bounded.
-		n := s.n
-		copy(s.jac, s.wd)
-		s.addBarrier(s.jac, func(c int) *[3][3]float64 { return &s.hx[c] })
+		copy(a, s.wd[:n*n])
+		s.addBarrier(a, func(c int) *[3][3]float64 { return &s.hx[c] })
 		for i := range n {
-			s.jac[i*n+i] += 1e-13 / s.rho
+			a[i*n+i] += 1e-13 / s.rho
 		}
-		if !lapack64.Getrf(s.general(s.jac), s.jpiv) {
+		if !lapack64.Getrf(s.general(a), piv) {
 			return fmt.Errorf("contact: Jacobian of the solution is singular")
 		}
 	}
-	s.jacReady = true
 	return nil
 }
 
