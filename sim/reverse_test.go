@@ -124,6 +124,15 @@ func TestReverseMatchesForwardScenes(t *testing.T) {
 		set := Settings{Solver: contact.SolverSettings{Smoothing: 1e-6}}
 		checkReverseSet(t, pusherCell(), set, []string{"kp:shoulder", "kd:elbow", "friction:card/steel", "mass:carton", "mass:fore"}, 150)
 	})
+	t.Run("joint-limit", func(t *testing.T) {
+		// A lever driven onto its limit: one-sided rows whose gap is a
+		// joint coordinate.
+		b := link("lever", -1, 0, 0.5, 2, r3.Vec{Y: 1})
+		b.Joint.Limited, b.Joint.Lower, b.Joint.Upper = true, -0.3, 0.3
+		m := &Model{Gravity: down, Bodies: []Body{b}, Actuators: []Actuator{{Name: "m", Body: 0}},
+			Controller: &Feedforward{Efforts: Table{Times: []float64{0, 1}, Values: [][]float64{{2}, {4}}}}}
+		checkReverse(t, m, []string{"mass:lever", "feedforward.0:m", "feedforward.1:m", "gravity.z", "start.qd:" + b.Joint.Name}, 400)
+	})
 	t.Run("tumbling-box", func(t *testing.T) {
 		// At κ = 0 the face-on-face manifold makes W + K nearly singular,
 		// and the forward and transposed solves with its factors then agree
