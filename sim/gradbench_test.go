@@ -79,36 +79,6 @@ func BenchmarkGradient(b *testing.B) {
 			b.ReportMetric(float64(tape)/gradSteps, "tape-B/step")
 		})
 	}
-	b.Run("UnrolledTapeLowerBound", func(b *testing.B) {
-		// Differentiating the same rollout by unrolling the interior-point
-		// iterations would keep, besides this tape's per-step data, the
-		// factors of every Newton matrix the solver formed (n² numbers and
-		// n pivots per factorization) and every iterate (λ and y, n each,
-		// and β per contact). This counts that least amount from the
-		// solver's own statistics on the rollout; the baseline itself (its
-		// backward pass) is not built.
-		var ours, unrolled int
-		for i := 0; i < b.N; i++ {
-			s := mustSim(b, m, Settings{})
-			ours, unrolled = 0, 0
-			var rec stepRecord
-			for k := 0; k < gradSteps; k++ {
-				if err := s.recordStep(&rec, false); err != nil {
-					b.Fatal(err)
-				}
-				st := s.SolveStats()
-				n, nc := rec.sens.Size()
-				if !rec.solved {
-					n, nc = 0, 0
-				}
-				ours += rec.bytes()
-				unrolled += rec.bytes() - rec.sens.Bytes() + st.Factorizations*(8*n*n+8*n) + st.Iterations*8*(2*n+nc)
-			}
-		}
-		b.ReportMetric(float64(ours)/gradSteps, "tape-B/step")
-		b.ReportMetric(float64(unrolled)/gradSteps, "unrolled-min-B/step")
-		b.ReportMetric(float64(unrolled)/float64(ours), "ratio")
-	})
 	b.Run("ForwardSweep16", func(b *testing.B) {
 		b.ReportAllocs()
 		for i := 0; i < b.N; i++ {
