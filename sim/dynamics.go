@@ -328,6 +328,17 @@ func cholesky(a []float64, n int) bool {
 	return true
 }
 
+// cholForward solves L z = b in place (x holds b on entry).
+func cholForward(l []float64, n int, x []float64) {
+	for i := 0; i < n; i++ {
+		s := x[i]
+		for k := 0; k < i; k++ {
+			s -= l[i*n+k] * x[k]
+		}
+		x[i] = s / l[i*n+i]
+	}
+}
+
 // cholSolve solves L Lᵀ x = b in place (x holds b on entry).
 func cholSolve(l []float64, n int, x []float64) {
 	for i := 0; i < n; i++ {

@@ -134,7 +134,7 @@ type Sim struct {
 	contacts []Contact
 	rowTrees [][2]int
 	ranges   []rowRange // per row, the coordinate ranges its trees span
-	jac, y   []float64
+	jac, z   []float64 // contact Jacobian rows; Z = L⁻¹Jᵀ rows
 	w        mat.SymDense
 	prob     contact.Problem
 	lambda   []float64
@@ -668,17 +668,23 @@ func (s *Sim) solveContacts() error {
 	if err != nil {
 		return s.stepError(err)
 	}
-	// v⁺ = v_free + Y λ; u = W λ + B.
-	copy(s.v, s.vfree)
+	// v⁺ = v_free + A⁻¹ Jᵀ λ; u = W λ + B.
+	clear(s.rhs)
 	for r := 0; r < n; r++ {
 		l := s.lambda[r]
 		if l == 0 {
 			continue
 		}
-		yr := s.y[r*nv : (r+1)*nv]
-		for d := range s.v {
-			s.v[d] += yr[d] * l
+		jr := s.jac[r*nv : (r+1)*nv]
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				s.rhs[d] += jr[d] * l
+			}
 		}
+	}
+	s.solveMass(s.rhs)
+	for d := range s.v {
+		s.v[d] = s.vfree[d] + s.rhs[d]
 	}
 	for i := 0; i < n; i++ {
 		u := s.prob.B[i]
@@ -707,7 +713,7 @@ func (s *Sim) buildRows(n int) {
 	nc := len(s.contacts)
 	h := s.set.TimeStep
 	s.jac = grow(s.jac, n*nv)
-	s.y = grow(s.y, n*nv)
+	s.z = grow(s.z, n*nv)
 	s.lambda = grow(s.lambda, n)
 	s.u = grow(s.u, n)
 	s.prob.B = grow(s.prob.B, n)
@@ -761,48 +767,56 @@ func (s *Sim) buildRows(n int) {
 	s.setRowRanges(n)
 }
 
-// buildDelassus computes Y = A⁻¹ Jᵀ, the Delassus operator W = J Y and
+// buildDelassus computes the Delassus operator W = J A⁻¹ Jᵀ and
 // B = J v_free − target for the rows of buildRows.
 func (s *Sim) buildDelassus(n int) {
 	nv := s.lay.nv
 	nc := len(s.contacts)
-	// Y = A⁻¹ Jᵀ, row by row, solving only in the trees a row touches.
-	copy(s.y, s.jac)
+	// Z = L⁻¹ Jᵀ row by row (A = L Lᵀ per tree), by forward substitution
+	// only in the trees a row touches; then W = Z Zᵀ, summed over the trees
+	// two rows share, is symmetric and positive semidefinite by
+	// construction.
+	copy(s.z, s.jac)
 	for r := 0; r < n; r++ {
-		yr := s.y[r*nv : (r+1)*nv]
+		zr := s.z[r*nv : (r+1)*nv]
 		for i, t := range s.rowTrees[r] {
 			if t < 0 || (i == 1 && t == s.rowTrees[r][0]) {
 				continue
 			}
 			tr := &s.lay.trees[t]
-			cholSolve(s.chol[tr.massOffset:tr.massOffset+tr.nv*tr.nv], tr.nv, yr[tr.vOff:tr.vOff+tr.nv])
+			cholForward(s.chol[tr.massOffset:tr.massOffset+tr.nv*tr.nv], tr.nv, zr[tr.vOff:tr.vOff+tr.nv])
 		}
 	}
-	// W = J Y, summing only over shared trees; B = J v_free − target.
+	// B = J v_free − target.
 	s.w.Reset()
 	s.w.ReuseAsSym(n)
+	raw := s.w.RawSymmetric()
 	for i := 0; i < n; i++ {
-		ji := s.jac[i*nv : (i+1)*nv]
+		zi := s.z[i*nv : (i+1)*nv]
+		ri := &s.ranges[i]
+		wi := raw.Data[i*raw.Stride : i*raw.Stride+n]
 		for j := i; j < n; j++ {
-			yj := s.y[j*nv : (j+1)*nv]
+			zj := s.z[j*nv : (j+1)*nv]
+			rj := &s.ranges[j]
 			var sum float64
-			for a, t := range s.rowTrees[i] {
-				if t < 0 || (a == 1 && t == s.rowTrees[i][0]) {
+			for a := 0; a < ri.n; a++ {
+				rg := ri.r[a]
+				if rj.r[0][0] != rg[0] && (rj.n < 2 || rj.r[1][0] != rg[0]) {
 					continue
 				}
-				if t != s.rowTrees[j][0] && t != s.rowTrees[j][1] {
-					continue
-				}
-				tr := &s.lay.trees[t]
-				for d := tr.vOff; d < tr.vOff+tr.nv; d++ {
-					sum += ji[d] * yj[d]
+				for d := rg[0]; d < rg[1]; d++ {
+					sum += zi[d] * zj[d]
 				}
 			}
-			s.w.SetSym(i, j, sum)
+			wi[j] = sum
 		}
 		var b float64
-		for d, x := range ji {
-			b += x * s.vfree[d]
+		ji := s.jac[i*nv : (i+1)*nv]
+		for a := 0; a < ri.n; a++ {
+			rg := ri.r[a]
+			for d := rg[0]; d < rg[1]; d++ {
+				b += ji[d] * s.vfree[d]
+			}
 		}
 		switch {
 		case i >= 3*nc:
