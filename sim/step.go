@@ -134,7 +134,7 @@ type Sim struct {
 	contacts []Contact
 	rowTrees [][2]int
 	ranges   []rowRange // per row, the coordinate ranges its trees span
-	jac, z   []float64 // contact Jacobian rows; Z = L⁻¹Jᵀ rows
+	jac, z   []float64  // contact Jacobian rows; Z = L⁻¹Jᵀ rows
 	w        mat.SymDense
 	prob     contact.Problem
 	lambda   []float64
