@@ -148,15 +148,7 @@ func boxFaceAdjoint(a *Shape, pa Pose, b *Shape, pb Pose, feat uint32, pos r3.Ve
 	iAxis := func(i int) r3.Vec { return r3.Vec{X: im[i], Y: im[3+i], Z: im[6+i]} }
 	rPoint := func(x r3.Vec) r3.Vec { return r3.Add(rp.Pos, rm.MulVec(x)) }
 	iPoint := func(x r3.Vec) r3.Vec { return r3.Add(ip.Pos, im.MulVec(x)) }
-	corner := func(f uint32, v int) r3.Vec {
-		ki := int(f / 2)
-		var x r3.Vec
-		setAt(&x, ki, faceSign(f)*vecAt(hi, ki))
-		u1, u2 := (ki+1)%3, (ki+2)%3
-		setAt(&x, u1, [4]float64{1, -1, -1, 1}[v]*vecAt(hi, u1))
-		setAt(&x, u2, [4]float64{1, 1, -1, -1}[v]*vecAt(hi, u2))
-		return iPoint(x)
-	}
+	corner := func(f uint32, v int) r3.Vec { return iPoint(incidentCornerLocal(hi, f, v)) }
 
 	refFace, incFace := feat&7, feat>>3&7
 	kind, va, vb := feat>>6&3, int(feat>>8&7), int(feat>>11&7)
@@ -192,13 +184,7 @@ func boxFaceAdjoint(a *Shape, pa Pose, b *Shape, pb Pose, feat uint32, pos r3.Ve
 		}
 		p = r3.Add(p0, r3.Scale(lam, e))
 	default:
-		var x r3.Vec
-		setAt(&x, k, sr*vecAt(hr, k))
-		for _, s := range [2]int{va, vb} {
-			j := (k + 1 + s/2) % 3
-			setAt(&x, j, sideSign(s)*(vecAt(hr, j)+boxClipSlack))
-		}
-		crn = rPoint(x)
+		crn = rPoint(refCorner(hr, k, sr, va, vb))
 		ki := int(incFace / 2)
 		si := faceSign(incFace)
 		nInc = r3.Scale(si, iAxis(ki))

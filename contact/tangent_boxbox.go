@@ -67,15 +67,7 @@ func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32, pos r3
 		}
 		p = tAdd(p0, tScale(lam, e))
 	default:
-		// Corner of the reference face, widened by boxClipSlack as
-		// boxBox clips, on side planes va and vb.
-		var x r3.Vec
-		setAt(&x, k, sr*vecAt(hr, k))
-		for _, s := range [2]int{va, vb} {
-			j := (k + 1 + s/2) % 3
-			setAt(&x, j, sideSign(s)*(vecAt(hr, j)+boxClipSlack))
-		}
-		corner := rf.point(x)
+		corner := rf.point(refCorner(hr, k, sr, va, vb))
 		ki := int(incFace / 2)
 		si := faceSign(incFace)
 		nInc := tScaleC(si, inf.axis(ki))
@@ -89,6 +81,19 @@ func tBoxBoxFace(a *Shape, fa *tframe, b *Shape, fb *tframe, feat uint32, pos r3
 		n = tNeg(nRef)
 	}
 	return tSub(p, tScale(nScale(0.5, g), nRef)), n, g
+}
+
+// refCorner returns, in the reference box's frame, the corner of reference
+// face (axis k, sign sr) on side planes va and vb, widened by boxClipSlack
+// as boxBox clips.
+func refCorner(hr r3.Vec, k int, sr float64, va, vb int) r3.Vec {
+	var x r3.Vec
+	setAt(&x, k, sr*vecAt(hr, k))
+	for _, s := range [2]int{va, vb} {
+		j := (k + 1 + s/2) % 3
+		setAt(&x, j, sideSign(s)*(vecAt(hr, j)+boxClipSlack))
+	}
+	return x
 }
 
 // edgeInPlaneTol is the sine of the angle between an incident edge and a
@@ -119,6 +124,11 @@ func sidePlaneDist(rf *tframe, hr r3.Vec, k, s int, p tvec) tnum {
 // incidentCorner returns corner v of incident face f in boxBox's order:
 // (+u, +v), (−u, +v), (−u, −v), (+u, −v) on the face's two other axes.
 func incidentCorner(inf *tframe, hi r3.Vec, f uint32, v int) tvec {
+	return inf.point(incidentCornerLocal(hi, f, v))
+}
+
+// incidentCornerLocal is incidentCorner in the incident box's frame.
+func incidentCornerLocal(hi r3.Vec, f uint32, v int) r3.Vec {
 	ki := int(f / 2)
 	var x r3.Vec
 	setAt(&x, ki, faceSign(f)*vecAt(hi, ki))
@@ -127,7 +137,7 @@ func incidentCorner(inf *tframe, hi r3.Vec, f uint32, v int) tvec {
 	sv := [4]float64{1, 1, -1, -1}[v]
 	setAt(&x, u1, su*vecAt(hi, u1))
 	setAt(&x, u2, sv*vecAt(hi, u2))
-	return inf.point(x)
+	return x
 }
 
 // tBoxBoxEdge is boxBoxEdge: the normal is the unit cross product of the

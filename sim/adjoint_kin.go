@@ -71,25 +71,11 @@ func (a inertia) applyT(f force) motion {
 
 // barOfApply adds to ib the bar of the inertia in I·x for the force bar f̄.
 func (ib *inertia) barOfApply(x motion, f force) {
-	// n = Io ω + h × v,  f = m v − h × ω.
-	for r := 0; r < 3; r++ {
-		nr := vecComp(f.n, r)
-		ib.io[3*r] += nr * x.w.X
-		ib.io[3*r+1] += nr * x.w.Y
-		ib.io[3*r+2] += nr * x.w.Z
-	}
+	// n = Io ω + h × v,  f = m v − h × ω: Īo += n̄ ωᵀ.
+	n, w := f.n, x.w
+	ib.io = ib.io.Add(contact.Mat3{n.X * w.X, n.X * w.Y, n.X * w.Z, n.Y * w.X, n.Y * w.Y, n.Y * w.Z, n.Z * w.X, n.Z * w.Y, n.Z * w.Z})
 	ib.h = r3.Add(ib.h, r3.Sub(r3.Cross(x.v, f.n), r3.Cross(x.w, f.f)))
 	ib.m += r3.Dot(f.f, x.v)
-}
-
-func vecComp(v r3.Vec, i int) float64 {
-	switch i {
-	case 0:
-		return v.X
-	case 1:
-		return v.Y
-	}
-	return v.Z
 }
 
 // crossMBarA returns the bar of a in a ×ₘ b for the motion bar c̄.

@@ -357,14 +357,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 }
 
 func (t *tangentSweep) gapTargetTangent(s *Sim, gap, dgap float64) float64 {
-	h := s.set.TimeStep
-	if gap < 0 {
-		if -s.set.CorrectionRate*gap/h >= s.set.MaxCorrection {
-			return 0
-		}
-		return -s.set.CorrectionRate * dgap / h
-	}
-	return -dgap / h
+	return gapTargetCoef(s, gap) * dgap
 }
 
 // integrate propagates the tangent through q⁺ = q ⊕ h v⁺, writing the
