@@ -243,30 +243,20 @@ func (a *stepAdjoint) contact(s *Sim, rec *contact.Sensitivity, n int) error {
 	copy(a.vfBar, a.vpBar)
 	copy(a.w, a.vpBar)
 	s.solveMass(a.w) // the bar of w
-	for r := 0; r < n; r++ {
-		jr := s.jac[r*nv : (r+1)*nv]
-		var sum float64
-		for _, rg := range s.rowRanges(r) {
-			for d := rg[0]; d < rg[1]; d++ {
-				sum += jr[d] * a.w[d]
-			}
-		}
-		a.lamBar[r] = sum
-	}
+	s.mulRows(s.jac, a.w, a.lamBar)
 	// dλ = −(W + K)⁻¹(dB_eff + M dμ).
 	if err := rec.VJP(&s.w, a.bBar, a.muBar, a.lamBar); err != nil {
 		return err
 	}
 	// dB_eff = dJ v⁺ + J(dv_free + A⁻¹ w) − dtarget.
 	clear(a.u)
+	s.addRowsT(s.jac, a.bBar, a.u)
 	for r := 0; r < n; r++ {
 		bb := a.bBar[r]
 		row := a.jacBar[r*nv : (r+1)*nv]
-		jr := s.jac[r*nv : (r+1)*nv]
 		for _, rg := range s.rowRanges(r) {
 			for d := rg[0]; d < rg[1]; d++ {
 				row[d] = bb * s.v[d]
-				a.u[d] += bb * jr[d]
 			}
 		}
 	}

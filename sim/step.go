@@ -620,6 +620,39 @@ func (s *Sim) rowRanges(r int) [][2]int {
 	return s.ranges[r].r[:s.ranges[r].n]
 }
 
+// addRowsT adds Σ_r x_r row_r to dst for contact-problem rows stored like
+// the Jacobian (one row of nv per entry of x), visiting only the
+// coordinates each row's trees span.
+func (s *Sim) addRowsT(rows, x, dst []float64) {
+	nv := s.lay.nv
+	for r, xr := range x {
+		if xr == 0 {
+			continue
+		}
+		row := rows[r*nv : (r+1)*nv]
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				dst[d] += row[d] * xr
+			}
+		}
+	}
+}
+
+// mulRows writes row_r · v into dst[r] for rows stored like the Jacobian.
+func (s *Sim) mulRows(rows, v, dst []float64) {
+	nv := s.lay.nv
+	for r := range dst {
+		row := rows[r*nv : (r+1)*nv]
+		var sum float64
+		for _, rg := range s.rowRanges(r) {
+			for d := rg[0]; d < rg[1]; d++ {
+				sum += row[d] * v[d]
+			}
+		}
+		dst[r] = sum
+	}
+}
+
 // rowRange holds up to two coordinate ranges of a row.
 type rowRange struct {
 	r [2][2]int
@@ -656,7 +689,6 @@ func (s *Sim) treeOf(b int) int {
 
 // solveContacts builds and solves the contact problem and sets v.
 func (s *Sim) solveContacts() error {
-	nv := s.lay.nv
 	nc := len(s.contacts)
 	n := 3*nc + len(s.limits)
 	s.buildRows(n)
@@ -670,18 +702,7 @@ func (s *Sim) solveContacts() error {
 	}
 	// v⁺ = v_free + A⁻¹ Jᵀ λ; u = W λ + B.
 	clear(s.rhs)
-	for r := 0; r < n; r++ {
-		l := s.lambda[r]
-		if l == 0 {
-			continue
-		}
-		jr := s.jac[r*nv : (r+1)*nv]
-		for _, rg := range s.rowRanges(r) {
-			for d := rg[0]; d < rg[1]; d++ {
-				s.rhs[d] += jr[d] * l
-			}
-		}
-	}
+	s.addRowsT(s.jac, s.lambda[:n], s.rhs)
 	s.solveMass(s.rhs)
 	for d := range s.v {
 		s.v[d] = s.vfree[d] + s.rhs[d]

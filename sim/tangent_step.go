@@ -309,18 +309,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 	for i := range t.w {
 		t.w[i] = -t.w[i]
 	}
-	for r := 0; r < n; r++ {
-		l := s.lambda[r]
-		if l == 0 {
-			continue
-		}
-		row := t.djac[r*nv : (r+1)*nv]
-		for _, rg := range s.rowRanges(r) {
-			for d := rg[0]; d < rg[1]; d++ {
-				t.w[d] += row[d] * l
-			}
-		}
-	}
+	s.addRowsT(t.djac, s.lambda[:n], t.w)
 	// A⁻¹ w.
 	copy(t.tmp, t.w)
 	s.solveMass(t.tmp)
@@ -340,15 +329,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 		return err
 	}
 	// dv⁺ = dv_free + A⁻¹(w + Jᵀ dλ).
-	for r := 0; r < n; r++ {
-		dl := t.dlam[r]
-		jr := s.jac[r*nv : (r+1)*nv]
-		for _, rg := range s.rowRanges(r) {
-			for d := rg[0]; d < rg[1]; d++ {
-				t.w[d] += jr[d] * dl
-			}
-		}
-	}
+	s.addRowsT(s.jac, t.dlam, t.w)
 	s.solveMass(t.w)
 	for d := range t.dvplus {
 		t.dvplus[d] = t.dvfree[d] + t.w[d]
