@@ -63,17 +63,7 @@ func newStepAdjoint(s *Sim, params []Param) *stepAdjoint {
 func (a *stepAdjoint) step(s *Sim, rec *contact.Sensitivity) error {
 	m, lay, kin := s.model, s.lay, s.kin
 	h := s.set.TimeStep
-	for pass := range a.passes {
-		varg := a.vargs[pass]
-		if pass == 0 {
-			copy(varg, s.v0)
-		} else {
-			for i := range varg {
-				varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
-			}
-		}
-		a.passes[pass].compute(m, lay, kin, varg, s.t)
-	}
+	s.primalPasses(&a.passes, &a.vargs)
 	a.ka.reset()
 	clear(a.aBar)
 	clear(a.tauBar)

@@ -57,8 +57,21 @@ func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 // solver's last factorization).
 func (t *tangentSweep) step(s *Sim) error {
 	// The primal Newton–Euler passes are the same for every column.
-	for pass := range t.passes {
-		varg := t.vargs[pass]
+	s.primalPasses(&t.passes, &t.vargs)
+	for j := range t.dq {
+		if err := t.column(s, j); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// primalPasses evaluates the step's Newton–Euler passes at their joint
+// velocities (v0, then the midpoints of v0 and each pass's free velocity),
+// keeping what tangents and adjoints need.
+func (s *Sim) primalPasses(passes *[midpointPasses + 1]*biasPrimal, vargs *[midpointPasses + 1][]float64) {
+	for pass := range passes {
+		varg := vargs[pass]
 		if pass == 0 {
 			copy(varg, s.v0)
 		} else {
@@ -66,14 +79,8 @@ func (t *tangentSweep) step(s *Sim) error {
 				varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
 			}
 		}
-		t.passes[pass].compute(s.model, s.lay, s.kin, varg, s.t)
+		passes[pass].compute(s.model, s.lay, s.kin, varg, s.t)
 	}
-	for j := range t.dq {
-		if err := t.column(s, j); err != nil {
-			return err
-		}
-	}
-	return nil
 }
 
 func (t *tangentSweep) column(s *Sim, j int) error {
