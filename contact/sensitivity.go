@@ -36,9 +36,11 @@ type Sensitivity struct {
 
 	lu  []float64 // LU factors of W + K when kept (Factor)
 	piv []int
-	// workspaces
+	// workspaces, and the factors in use (lu or a)
 	a, theta, work []float64
 	apiv           []int
+	flu            []float64
+	fpiv           []int
 }
 
 // perCone is the length of a contact's entry in Sensitivity.k.
@@ -78,9 +80,9 @@ func (s *Solver) Record(dst *Sensitivity, factor bool) error {
 	}
 	dst.lu, dst.piv = dst.lu[:0], dst.piv[:0]
 	if factor {
-		if s.jacReady {
-			dst.lu = append(dst.lu, s.jac[:n*n]...)
-			dst.piv = append(dst.piv, s.jpiv[:n]...)
+		if s.jacReady && dst != &s.sens {
+			dst.lu = append(dst.lu, s.sens.lu...)
+			dst.piv = append(dst.piv, s.sens.piv...)
 			return nil
 		}
 		// Factor W + K straight into the record (the solver's own
@@ -149,16 +151,17 @@ func (r *Sensitivity) assemble(a []float64, w *mat.SymDense) {
 	}
 }
 
-// factor returns the LU factors of W + K: the kept ones, or a fresh
-// factorization of W + K assembled from w (which must then be the
+// factor sets flu and fpiv to the LU factors of W + K: the kept ones, or
+// a fresh factorization of W + K assembled from w (which must then be the
 // problem's W, as recorded).
-func (r *Sensitivity) factor(w *mat.SymDense) ([]float64, []int, error) {
+func (r *Sensitivity) factor(w *mat.SymDense) error {
 	if len(r.lu) > 0 {
-		return r.lu, r.piv, nil
+		r.flu, r.fpiv = r.lu, r.piv
+		return nil
 	}
 	n := r.n
 	if w == nil || w.SymmetricDim() != n {
-		return nil, nil, fmt.Errorf("contact: sensitivity of a %d-row problem needs its %d×%d Delassus operator", n, n, n)
+		return fmt.Errorf("contact: sensitivity of a %d-row problem needs its %d×%d Delassus operator", n, n, n)
 	}
 	r.a = grow(r.a, n*n)
 	if cap(r.apiv) < n {
@@ -168,17 +171,42 @@ func (r *Sensitivity) factor(w *mat.SymDense) ([]float64, []int, error) {
 	g := blas64.General{Rows: n, Cols: n, Stride: n, Data: r.a}
 	r.assemble(r.a, w)
 	if !lapack64.Getrf(g, r.apiv) {
-		// As in Solver.factorJacobian: a tiny diagonal shift for W
-		// singular at rows whose barrier terms vanished.
+		// As in Solver.factorInto: a tiny diagonal shift for W singular
+		// at rows whose barrier terms vanished.
 		r.assemble(r.a, w)
 		for i := range n {
 			r.a[i*n+i] += 1e-13 / r.rho
 		}
 		if !lapack64.Getrf(g, r.apiv) {
-			return nil, nil, fmt.Errorf("contact: Jacobian of the solution is singular")
+			return fmt.Errorf("contact: Jacobian of the solution is singular")
 		}
 	}
-	return r.a, r.apiv, nil
+	r.flu, r.fpiv = r.a, r.apiv
+	return nil
+}
+
+// JVP is Solver.JVP for the recorded problem: it writes into dLambda the
+// derivative of λ along (dB, dMu). w is the problem's Delassus operator; it
+// is not read when the record kept its factors. dMu may be nil.
+func (r *Sensitivity) JVP(w *mat.SymDense, dLambda, dB, dMu []float64) error {
+	n, nc := r.n, r.nc
+	if len(dLambda) != n || len(dB) != n || (dMu != nil && len(dMu) != nc) {
+		return fmt.Errorf("contact: sensitivity JVP: lengths %d, %d, %d for a problem of %d rows and %d contacts",
+			len(dLambda), len(dB), len(dMu), n, nc)
+	}
+	if err := r.factor(w); err != nil {
+		return err
+	}
+	r.theta = grow(r.theta, n+nc)
+	copy(r.theta, dB)
+	for c := range nc {
+		r.theta[n+c] = 0
+		if dMu != nil {
+			r.theta[n+c] = dMu[c]
+		}
+	}
+	r.work = grow(r.work, n)
+	return implicit.JVP(recordFactor{r}, recordParams{r}, dLambda, r.theta, r.work)
 }
 
 // VJP is Solver.VJP for the recorded problem: it writes into bBar and muBar
@@ -191,13 +219,12 @@ func (r *Sensitivity) VJP(w *mat.SymDense, bBar, muBar, lambdaBar []float64) err
 		return fmt.Errorf("contact: sensitivity VJP: lengths %d, %d, %d for a problem of %d rows and %d contacts",
 			len(bBar), len(muBar), len(lambdaBar), n, nc)
 	}
-	lu, piv, err := r.factor(w)
-	if err != nil {
+	if err := r.factor(w); err != nil {
 		return err
 	}
 	r.theta = grow(r.theta, n+nc)
 	r.work = grow(r.work, n)
-	if err := implicit.VJP(recordFactor{lu, piv, n}, recordParams{r}, r.theta, lambdaBar, r.work); err != nil {
+	if err := implicit.VJP(recordFactor{r}, recordParams{r}, r.theta, lambdaBar, r.work); err != nil {
 		return err
 	}
 	copy(bBar, r.theta[:n])
@@ -207,28 +234,28 @@ func (r *Sensitivity) VJP(w *mat.SymDense, bBar, muBar, lambdaBar []float64) err
 	return nil
 }
 
-// recordFactor presents kept LU factors as the F_z of package implicit.
-type recordFactor struct {
-	lu  []float64
-	piv []int
-	n   int
-}
+// recordFactor presents a record's factors (flu, fpiv) as the F_z of
+// package implicit.
+type recordFactor struct{ r *Sensitivity }
 
-func (f recordFactor) Size() int { return f.n }
+func (f recordFactor) Size() int { return f.r.n }
 
 func (f recordFactor) SolveTo(dst, b []float64) error {
 	copy(dst, b)
-	luSolve(f.lu, f.n, f.piv, dst)
+	luSolve(f.r.flu, f.r.n, f.r.fpiv, dst)
 	return nil
 }
 
 func (f recordFactor) SolveTransTo(dst, b []float64) error {
 	copy(dst, b)
-	luSolveTrans(f.lu, f.n, f.piv, dst)
+	luSolveTrans(f.r.flu, f.r.n, f.r.fpiv, dst)
 	return nil
 }
 
-// recordParams is paramOp for a record: F_θ(dB, dμ) = dB + M dμ.
+// recordParams is F_θ for the parameters θ = (B, μ): F_θ(dB, dμ) = dB + M dμ,
+// where M dμ lives on the tangent rows of contact c: λn [Arw(ξ)⁻¹Arw(η)]_{t,0}
+// dμ_c. Frictionless contacts keep λt = 0, so their tangent rows read
+// nothing.
 type recordParams struct{ r *Sensitivity }
 
 func (o recordParams) Dims() (n, p int) { return o.r.n, o.r.n + o.r.nc }

@@ -142,15 +142,15 @@ type Solver struct {
 	rho            float64 // 1/max W_ii: fallback for rows with W_ii = 0
 	tolRatio       float64 // Tolerance / VelocityTolerance
 
-	// Exact Jacobian of the optimality conditions at the solution, reduced
-	// to λ, factored on first use by the derivative methods.
+	// jac and jpiv are the polishing Newton matrix's workspace. sens is
+	// the record of the exact Jacobian of the optimality conditions at the
+	// solution, reduced to λ, factored on first use by the derivative
+	// methods (jacReady).
 	jac      []float64
 	jpiv     []int
+	sens     Sensitivity
 	jacReady bool
-	// dtheta and dwork are the parameter-space and equation-space
-	// workspaces of JVP and VJP.
-	dtheta, dwork []float64
-	solved        bool
+	solved   bool
 }
 
 // NewSolver returns a solver with empty workspaces.

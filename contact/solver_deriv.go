@@ -3,8 +3,6 @@ package contact
 import (
 	"fmt"
 
-	"stickslip/implicit"
-
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -32,7 +30,8 @@ import (
 // to μ and to their tangential B are zero (the one-sided derivative at
 // μ = 0 is not represented).
 
-// factorJacobian forms and factors W + K at the final iterate.
+// factorJacobian forms and factors W + K at the final iterate, into the
+// solver's own sensitivity record.
 func (s *Solver) factorJacobian() error {
 	if !s.solved {
 		return ErrNoSolution
@@ -40,13 +39,7 @@ func (s *Solver) factorJacobian() error {
 	if s.jacReady {
 		return nil
 	}
-	for c := range s.nc {
-		if s.mu[c] > 0 {
-			xi, eta := s.cone(c)
-			s.hx[c] = arwCoupling(xi, eta)
-		}
-	}
-	if err := s.factorInto(s.jac, s.jpiv); err != nil {
+	if err := s.Record(&s.sens, true); err != nil {
 		return err
 	}
 	s.jacReady = true
@@ -75,16 +68,6 @@ func (s *Solver) factorInto(a []float64, piv []int) error {
 	return nil
 }
 
-func (s *Solver) checkLen(name string, v []float64, n int, optional bool) error {
-	if optional && v == nil {
-		return nil
-	}
-	if len(v) != n {
-		return fmt.Errorf("contact: %s has length %d, want %d", name, len(v), n)
-	}
-	return nil
-}
-
 // JVP writes into dLambda the directional derivative of the last solution λ
 // along a perturbation (dB, dMu) of the problem: dλ = −(W + K)⁻¹(dB + M dμ)
 // (package implicit, with F_z = W + K factored once per solve and
@@ -94,25 +77,7 @@ func (s *Solver) JVP(dLambda, dB, dMu []float64) error {
 	if err := s.factorJacobian(); err != nil {
 		return err
 	}
-	if err := s.checkLen("dLambda", dLambda, s.n, false); err != nil {
-		return err
-	}
-	if err := s.checkLen("dB", dB, s.n, false); err != nil {
-		return err
-	}
-	if err := s.checkLen("dMu", dMu, s.nc, true); err != nil {
-		return err
-	}
-	s.dtheta = grow(s.dtheta, s.n+s.nc)
-	copy(s.dtheta, dB)
-	for c := range s.nc {
-		s.dtheta[s.n+c] = 0
-		if dMu != nil {
-			s.dtheta[s.n+c] = dMu[c]
-		}
-	}
-	s.dwork = grow(s.dwork, s.n)
-	return implicit.JVP(jacFactor{s}, paramOp{s}, dLambda, s.dtheta, s.dwork)
+	return s.sens.JVP(nil, dLambda, dB, dMu)
 }
 
 // VJP writes into bBar and muBar the gradients of the scalar ⟨lambdaBar, λ⟩
@@ -123,81 +88,7 @@ func (s *Solver) VJP(bBar, muBar, lambdaBar []float64) error {
 	if err := s.factorJacobian(); err != nil {
 		return err
 	}
-	if err := s.checkLen("bBar", bBar, s.n, false); err != nil {
-		return err
-	}
-	if err := s.checkLen("lambdaBar", lambdaBar, s.n, false); err != nil {
-		return err
-	}
-	if err := s.checkLen("muBar", muBar, s.nc, true); err != nil {
-		return err
-	}
-	s.dtheta = grow(s.dtheta, s.n+s.nc)
-	s.dwork = grow(s.dwork, s.n)
-	if err := implicit.VJP(jacFactor{s}, paramOp{s}, s.dtheta, lambdaBar, s.dwork); err != nil {
-		return err
-	}
-	copy(bBar, s.dtheta[:s.n])
-	if muBar != nil {
-		copy(muBar, s.dtheta[s.n:])
-	}
-	return nil
-}
-
-// jacFactor presents the factored reduced Jacobian W + K as the F_z of
-// package implicit.
-type jacFactor struct{ s *Solver }
-
-func (f jacFactor) Size() int { return f.s.n }
-
-func (f jacFactor) SolveTo(dst, b []float64) error {
-	copy(dst, b)
-	luSolve(f.s.jac, f.s.n, f.s.jpiv, dst)
-	return nil
-}
-
-func (f jacFactor) SolveTransTo(dst, b []float64) error {
-	copy(dst, b)
-	luSolveTrans(f.s.jac, f.s.n, f.s.jpiv, dst)
-	return nil
-}
-
-// paramOp is F_θ for the parameters θ = (B, μ): F_θ(dB, dμ) = dB + M dμ,
-// where M dμ lives on the tangent rows of contact c: λn [Arw(ξ)⁻¹Arw(η)]_{t,0}
-// dμ_c. Frictionless contacts keep λt = 0, so their tangent rows read
-// nothing.
-type paramOp struct{ s *Solver }
-
-func (o paramOp) Dims() (n, p int) { return o.s.n, o.s.n + o.s.nc }
-
-func (o paramOp) ApplyTo(dst, dTheta []float64) {
-	s := o.s
-	copy(dst, dTheta[:s.n])
-	for c := range s.nc {
-		i := 3 * c
-		if s.mu[c] == 0 {
-			dst[i+1], dst[i+2] = 0, 0
-			continue
-		}
-		dmu := dTheta[s.n+c]
-		for r := 1; r < 3; r++ {
-			dst[i+r] += s.lam[i] * s.hx[c][r][0] * dmu
-		}
-	}
-}
-
-func (o paramOp) ApplyTransTo(dst, w []float64) {
-	s := o.s
-	copy(dst, w[:s.n])
-	for c := range s.nc {
-		i := 3 * c
-		dst[s.n+c] = 0
-		if s.mu[c] == 0 {
-			dst[i+1], dst[i+2] = 0, 0
-			continue
-		}
-		dst[s.n+c] = s.lam[i] * (w[i+1]*s.hx[c][1][0] + w[i+2]*s.hx[c][2][0])
-	}
+	return s.sens.VJP(nil, bBar, muBar, lambdaBar)
 }
 
 // ReducedJacobian writes the reduced Jacobian W + K of the optimality
