@@ -32,7 +32,7 @@ var (
 	bodyPoseFields = append(append([]string{}, poseFields...), "on", "at", "lift")
 	inertiaFields  = []string{"principal", "matrix"}
 	velocityFields = []string{"linear", "angular"}
-	jointFields    = []string{"name", "kind", "parent", "frame", "axis", "limits", "damping", "friction", "armature", "position", "velocity"}
+	jointFields    = []string{"name", "kind", "parent", "frame", "axis", "limits", "damping", "friction", "armature", "position", "velocity", "rotation", "spin"}
 	limitFields    = []string{"lower", "upper"}
 	loadFields     = []string{"body", "point", "force", "torque", "schedule"}
 	keyFields      = []string{"time", "force", "torque"}
@@ -503,9 +503,9 @@ func (d *decoder) joint(f *fields, bd *bodyDecl) {
 	case sim.Fixed:
 		takes = []string{"name", "kind", "parent", "frame"}
 	case sim.Ball:
-		takes = []string{"name", "kind", "parent", "frame", "damping", "friction", "armature"}
+		takes = []string{"name", "kind", "parent", "frame", "damping", "friction", "armature", "rotation", "spin"}
 	default:
-		takes = jointFields
+		takes = []string{"name", "kind", "parent", "frame", "axis", "limits", "damping", "friction", "armature", "position", "velocity"}
 	}
 	for _, key := range jointFields {
 		if g.has(key) && !slices.Contains(takes, key) {
@@ -536,6 +536,12 @@ func (d *decoder) joint(f *fields, bd *bodyDecl) {
 	}
 	if v := g.get("velocity"); v != nil {
 		j.Velocity = d.float(v, g.sub("velocity"))
+	}
+	if v := g.get("rotation"); v != nil {
+		j.Rotation = d.rotation(d.mapping(v, g.sub("rotation"), "quat", "turn"))
+	}
+	if v := g.get("spin"); v != nil {
+		j.Spin = d.vec3(v, g.sub("spin"))
 	}
 	if v := g.get("limits"); v != nil {
 		h := d.mapping(v, g.sub("limits"), limitFields...)

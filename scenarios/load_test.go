@@ -249,7 +249,7 @@ bodies:
   - name: wrist
     mass: 0.3
     shapes: [{kind: sphere, radius: 0.03}]
-    joint: {kind: ball, parent: slider, frame: {position: [0.1, 0, 0]}, damping: 0.02}
+    joint: {kind: ball, parent: slider, frame: {position: [0.1, 0, 0]}, damping: 0.02, rotation: {turn: {axis: [0, 1, 0], degrees: 20}}, spin: [0, 0, 1]}
   - name: tongs
     mass: 0.1
     shapes: [{kind: box, size: [0.1, 0.02, 0.02]}]
@@ -297,6 +297,9 @@ func TestRichScene(t *testing.T) {
 	if arm.Name != "shoulder" || arm.Kind != sim.Revolute || !arm.Limited || arm.Lower != -1.5 || arm.Upper != 1.5 ||
 		arm.Damping != 0.5 || arm.Friction != 0.1 || arm.Armature != 0.01 || arm.Position != 0.2 || arm.Velocity != -0.1 {
 		t.Errorf("arm joint %+v", arm)
+	}
+	if j := m.Bodies[idx["wrist"]].Joint; contact.Angle(j.Rotation, contact.QuatFromAxisAngle(r3.Vec{Y: 1}, math.Pi/9)) > 1e-12 || j.Spin != (r3.Vec{Z: 1}) {
+		t.Errorf("wrist joint starts at rotation %v, spin %v; want 20° about y, (0, 0, 1)", j.Rotation, j.Spin)
 	}
 	if j := m.Bodies[idx["tongs"]].Joint; j.Name != "grip" || j.Kind != sim.Fixed || j.Parent != idx["wrist"] {
 		t.Errorf("tongs joint %+v", j)
@@ -514,7 +517,9 @@ func TestErrors(t *testing.T) {
 		{"limits reversed", body + "    mass: 1\n    inertia: {principal: [1, 1, 1]}\n    joint: {kind: revolute, limits: {lower: 1, upper: -1}}\n", nil,
 			`t.yaml:5:37: bodies[crate].joint.limits.lower: lower limit 1 rad is above upper limit -1 rad; need lower ≤ upper`, ""},
 		{"axis on a ball joint", body + "    mass: 1\n    inertia: {principal: [1, 1, 1]}\n    joint: {kind: ball, axis: [0, 0, 1]}\n", nil,
-			`t.yaml:5:31: bodies[crate].joint.axis: does not apply to a ball joint; it takes name, kind, parent, frame, damping, friction, armature`, ""},
+			`t.yaml:5:31: bodies[crate].joint.axis: does not apply to a ball joint; it takes name, kind, parent, frame, damping, friction, armature, rotation, spin`, ""},
+		{"spin on a hinge", body + "    mass: 1\n    inertia: {principal: [1, 1, 1]}\n    joint: {kind: revolute, spin: [0, 0, 1]}\n", nil,
+			`t.yaml:5:35: bodies[crate].joint.spin: does not apply to a revolute joint; it takes name, kind, parent, frame, axis, limits, damping, friction, armature, position, velocity`, ""},
 		{"unknown joint kind", body + "    mass: 1\n    inertia: {principal: [1, 1, 1]}\n    joint: {kind: hinge}\n", nil,
 			`t.yaml:5:19: bodies[crate].joint.kind: unknown joint kind "hinge"; valid kinds: free, revolute, prismatic, fixed, ball`, ""},
 		{"pose on a jointed body", body + "    mass: 1\n    inertia: {principal: [1, 1, 1]}\n    joint: {kind: revolute}\n    pose: {position: [0, 0, 1]}\n", nil,

@@ -306,6 +306,12 @@ func bodyNode(m *sim.Model, i int) (*yaml.Node, error) {
 		add(jn, "velocity", num(j.Velocity))
 		fallthrough
 	case sim.Ball:
+		if j.Rotation != (contact.Quat{}) && j.Rotation != contact.IdentityQuat {
+			add(jn, "rotation", poseNode(contact.Pose{Rot: j.Rotation}))
+		}
+		if j.Spin != (r3.Vec{}) {
+			add(jn, "spin", vec(j.Spin))
+		}
 		add(jn, "damping", num(j.Damping))
 		add(jn, "friction", num(j.Friction))
 		add(jn, "armature", num(j.Armature))

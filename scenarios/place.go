@@ -67,6 +67,10 @@ func worldPoses(bodies []sim.Body) []contact.Pose {
 			motion.Rot = contact.QuatFromAxisAngle(j.Axis, j.Position)
 		case sim.Prismatic:
 			motion.Pos = r3.Scale(j.Position, j.Axis)
+		case sim.Ball:
+			if j.Rotation != (contact.Quat{}) {
+				motion.Rot = j.Rotation.Normalize()
+			}
 		}
 		out[i] = parent.Mul(j.Frame).Mul(motion)
 	}

@@ -338,3 +338,45 @@ func TestTableValidate(t *testing.T) {
 		t.Error("decreasing times accepted")
 	}
 }
+
+func TestSphericalPendulumStart(t *testing.T) {
+	// A ball-jointed pendulum started tilted 40° and spinning about the
+	// vertical. It starts at the given rotation and angular velocity, and
+	// the spherical pendulum conserves its energy and the vertical
+	// component of its angular momentum about the pivot (gravity's torque
+	// about the pivot is horizontal; textbook mechanics, e.g. Goldstein,
+	// Classical Mechanics, the spherical pendulum).
+	const l, mass = 0.6, 1.5
+	rot := contact.QuatFromAxisAngle(r3.Vec{X: 1}, 40*math.Pi/180)
+	spin := r3.Vec{Z: 3}
+	bob := Body{Name: "bob", Mass: mass, COM: r3.Vec{Z: -l},
+		Inertia: contact.Diag3(r3.Vec{X: 0.002, Y: 0.002, Z: 0.001}),
+		Joint:   Joint{Name: "pivot", Kind: Ball, Parent: -1, Frame: contact.IdentityPose, Rotation: rot, Spin: spin}}
+	m := &Model{Gravity: down, Bodies: []Body{bob}}
+	s := mustSim(t, m, Settings{})
+	b := s.Body(0)
+	if d := r3.Norm(r3.Sub(b.Angular, spin)); d > 1e-12 {
+		t.Errorf("starting angular velocity %v, want %v", b.Angular, spin)
+	}
+	if d := r3.Norm(r3.Sub(b.Pose.Rot.Rotate(r3.Vec{Z: -1}), rot.Rotate(r3.Vec{Z: -1}))); d > 1e-12 {
+		t.Errorf("starting pose %v, want rotation %v", b.Pose.Rot, rot)
+	}
+	k, p := s.Energy()
+	e0, lz0 := k+p, s.AngularMomentum().Z
+	worstE, worstL := 0.0, 0.0
+	for s.Time() < 5 {
+		if err := s.Step(); err != nil {
+			t.Fatal(err)
+		}
+		k, p := s.Energy()
+		worstE = math.Max(worstE, math.Abs(k+p-e0))
+		worstL = math.Max(worstL, math.Abs(s.AngularMomentum().Z-lz0))
+	}
+	t.Logf("energy drift %.2g of the kinetic energy, L_z drift %.2g", worstE/k, worstL/math.Abs(lz0))
+	if worstE/k > 0.005 {
+		t.Errorf("energy drift %.3g J (%.2g of the kinetic energy)", worstE, worstE/k)
+	}
+	if worstL/math.Abs(lz0) > 0.001 {
+		t.Errorf("vertical angular momentum drift %.3g of %.4g kg·m²/s", worstL, lz0)
+	}
+}

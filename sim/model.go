@@ -134,6 +134,12 @@ type Joint struct {
 	// Position and Velocity are the initial coordinates of a one-DOF joint.
 	Position float64
 	Velocity float64
+	// Rotation and Spin are the initial state of a ball joint: the child
+	// frame's rotation relative to the joint frame (the zero value is the
+	// identity) and the child's angular velocity relative to the parent,
+	// in joint-frame axes (rad/s).
+	Rotation contact.Quat
+	Spin     r3.Vec
 }
 
 // StaticShape is world-fixed geometry (floors, tables, inclines).

@@ -355,10 +355,16 @@ func (s *Sim) Reset() {
 			l := b.Start.Linear
 			copy(v, []float64{w.X, w.Y, w.Z, l.X, l.Y, l.Z})
 		case Ball:
-			copy(q, []float64{1, 0, 0, 0})
-			for d := range v {
-				v[d] = 0
+			rot := b.Joint.Rotation
+			if rot == (contact.Quat{}) {
+				rot = contact.IdentityQuat
 			}
+			rot = rot.Normalize()
+			copy(q, []float64{rot.W, rot.X, rot.Y, rot.Z})
+			// The coordinates are the relative angular velocity in the
+			// child's axes.
+			w := rot.InvRotate(b.Joint.Spin)
+			copy(v, []float64{w.X, w.Y, w.Z})
 		case Revolute, Prismatic:
 			q[0], v[0] = b.Joint.Position, b.Joint.Velocity
 		}
