@@ -172,7 +172,12 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 		seg = max(int(math.Ceil(math.Sqrt(float64(steps)))), 1)
 	}
 	var checkpoints []stateCopy
-	tape := make([]stepRecord, min(seg, steps))
+	// The simulator keeps its tape between sweeps, so that repeated
+	// sweeps (an optimization loop) reuse its storage.
+	if n := min(seg, steps); len(s.tape) < n {
+		s.tape = append(s.tape, make([]stepRecord, n-len(s.tape))...)
+	}
+	tape := s.tape
 	tapeBytes := func(n int) int {
 		b := 0
 		for k := range n {

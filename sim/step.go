@@ -117,7 +117,8 @@ type Sim struct {
 	q0, v0             []float64
 	vpass              [midpointPasses + 1][]float64
 	tan                *tangentSweep
-	ctl                Controller // the simulator's own copy of the model's controller
+	tape               []stepRecord // the reverse sweep's, kept for reuse
+	ctl                Controller   // the simulator's own copy of the model's controller
 	ctlIn              ControlInput
 	ctlOut             ControlOutput
 	limits             []limitRow
