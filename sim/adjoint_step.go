@@ -57,13 +57,19 @@ func newStepAdjoint(s *Sim, params []Param) *stepAdjoint {
 	return a
 }
 
-// step carries (qBar, vBar) back through the step whose primal
-// intermediates s holds (see Sim.prime); rec is the step's contact
-// sensitivity (nil without contacts).
-func (a *stepAdjoint) step(s *Sim, rec *contact.Sensitivity) error {
+// step carries (qBar, vBar) back through the recorded step rec whose
+// primal intermediates s holds (see Sim.prime).
+func (a *stepAdjoint) step(s *Sim, rec *stepRecord) error {
 	m, lay, kin := s.model, s.lay, s.kin
 	h := s.set.TimeStep
-	s.primalPasses(&a.passes, &a.vargs)
+	passes := &a.passes
+	if rec.kept {
+		// The recorded passes; their joint velocities are still needed.
+		passes = &rec.passes
+		s.passVelocities(&a.vargs)
+	} else {
+		s.primalPasses(&a.passes, &a.vargs)
+	}
 	a.ka.reset()
 	clear(a.aBar)
 	clear(a.tauBar)
@@ -74,7 +80,7 @@ func (a *stepAdjoint) step(s *Sim, rec *contact.Sensitivity) error {
 
 	a.integrate(s)
 	if n := 3*len(s.contacts) + len(s.limits); n > 0 {
-		if err := a.contact(s, rec, n); err != nil {
+		if err := a.contact(s, &rec.sens, n); err != nil {
 			return err
 		}
 	} else {
@@ -104,7 +110,7 @@ func (a *stepAdjoint) step(s *Sim, rec *contact.Sensitivity) error {
 		}
 		a.outerMinus(s, a.rb, a.w)
 		clear(a.vargBar)
-		a.ka.bias(m, lay, kin, a.passes[pass], a.vargs[pass], a.cb, a.vargBar, s.t, a.gb)
+		a.ka.bias(m, lay, kin, passes[pass], a.vargs[pass], a.cb, a.vargBar, s.t, a.gb)
 		if pass == 0 {
 			for i, x := range a.vargBar {
 				a.v0Bar[i] += x

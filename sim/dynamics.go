@@ -203,6 +203,17 @@ func (k *kinematics) update(m *Model, lay *layout, q, v []float64) {
 	}
 }
 
+// composite sums the bodies' inertias into the composite inertias of their
+// subtrees (k.ic).
+func (k *kinematics) composite(m *Model, lay *layout) {
+	copy(k.ic, k.in)
+	for i := len(m.Bodies) - 1; i >= 0; i-- {
+		if p := lay.bodies[i].parent; p >= 0 {
+			k.ic[p] = k.ic[p].add(k.ic[i])
+		}
+	}
+}
+
 // massMatrix fills the per-tree dense blocks of the joint-space mass matrix
 // by the composite-rigid-body algorithm (Featherstone, Rigid Body Dynamics
 // Algorithms, §6.2), adding armature to the diagonal.
@@ -210,12 +221,7 @@ func (k *kinematics) massMatrix(m *Model, lay *layout, mass []float64) {
 	for i := range mass {
 		mass[i] = 0
 	}
-	copy(k.ic, k.in)
-	for i := len(m.Bodies) - 1; i >= 0; i-- {
-		if p := lay.bodies[i].parent; p >= 0 {
-			k.ic[p] = k.ic[p].add(k.ic[i])
-		}
-	}
+	k.composite(m, lay)
 	for i := range m.Bodies {
 		bl := &lay.bodies[i]
 		tr := &lay.trees[bl.tree]

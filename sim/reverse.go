@@ -3,6 +3,7 @@ package sim
 import (
 	"fmt"
 	"math"
+	"sync"
 	"unsafe"
 
 	"stickslip/contact"
@@ -62,9 +63,18 @@ type stepRecord struct {
 	geomPoses []contact.Pose
 	sens      contact.Sensitivity
 	solved    bool // whether the step had a contact problem
+	// With KeepFactors also: A's factors, the Jacobian rows and the
+	// Newton–Euler passes.
+	kept   bool
+	chol   []float64
+	jac    []float64
+	passes [midpointPasses + 1]*biasPrimal
 }
 
 var contactBytes = int(unsafe.Sizeof(Contact{}))
+
+// tapePool holds reverse-sweep tapes (*[]stepRecord) for reuse.
+var tapePool sync.Pool
 
 func (r *stepRecord) bytes() int {
 	b := 8 * (len(r.q0) + len(r.v0) + len(r.v) + 1)
@@ -75,6 +85,12 @@ func (r *stepRecord) bytes() int {
 	if r.solved {
 		b += r.sens.Bytes()
 	}
+	if r.kept {
+		b += 8 * (len(r.chol) + len(r.jac))
+		for _, p := range r.passes {
+			b += 3*len(p.bvel)*int(unsafe.Sizeof(motion{})) + 2*len(p.iv)*int(unsafe.Sizeof(force{}))
+		}
+	}
 	return b
 }
 
@@ -83,7 +99,20 @@ func (s *Sim) recordStep(r *stepRecord, keep bool) error {
 	r.q0 = append(r.q0[:0], s.q...)
 	r.v0 = append(r.v0[:0], s.v...)
 	r.t = s.t
-	if err := s.Step(); err != nil {
+	r.kept = keep
+	if keep {
+		nb, nv := len(s.model.Bodies), s.lay.nv
+		for p, bp := range r.passes {
+			// Pooled records may come from another model.
+			if bp == nil || len(bp.bvel) != nb || len(bp.c) != nv {
+				r.passes[p] = newBiasPrimal(nb, nv)
+			}
+		}
+		s.passRec = &r.passes
+	}
+	err := s.Step()
+	s.passRec = nil
+	if err != nil {
 		return err
 	}
 	for p := range r.vpass {
@@ -93,11 +122,16 @@ func (s *Sim) recordStep(r *stepRecord, keep bool) error {
 	r.contacts = append(r.contacts[:0], s.contacts...)
 	r.limits = append(r.limits[:0], s.limits...)
 	r.geomPoses = append(r.geomPoses[:0], s.geomPoses...)
-	r.solved = len(s.contacts)+len(s.limits) > 0
+	n := 3*len(s.contacts) + len(s.limits)
+	r.solved = n > 0
 	if r.solved {
 		if err := s.solver.Record(&r.sens, keep); err != nil {
 			return s.stepError(err)
 		}
+	}
+	if keep {
+		r.chol = append(r.chol[:0], s.chol...)
+		r.jac = append(r.jac[:0], s.jac[:n*s.lay.nv]...)
 	}
 	return nil
 }
@@ -111,7 +145,11 @@ func (s *Sim) prime(r *stepRecord) error {
 	copy(s.v0, r.v0)
 	s.t = r.t
 	s.kin.update(s.model, s.lay, s.q, s.v)
-	if err := s.factorMass(); err != nil {
+	if r.kept {
+		s.control()
+		s.kin.composite(s.model, s.lay)
+		copy(s.chol, r.chol)
+	} else if err := s.factorMass(); err != nil {
 		return err
 	}
 	for p := range r.vpass {
@@ -123,7 +161,11 @@ func (s *Sim) prime(r *stepRecord) error {
 	copy(s.geomPoses, r.geomPoses)
 	if r.solved {
 		n := 3*len(s.contacts) + len(s.limits)
-		s.buildRows(n)
+		if r.kept {
+			s.restoreRows(n, r.jac)
+		} else {
+			s.buildRows(n)
+		}
 		copy(s.lambda, r.sens.Lambda())
 		if n0, _ := r.sens.Size(); n0 != n {
 			return fmt.Errorf("tape: step at t = %g has %d rows, its record %d", r.t, n, n0)
@@ -172,12 +214,17 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 		seg = max(int(math.Ceil(math.Sqrt(float64(steps)))), 1)
 	}
 	var checkpoints []stateCopy
-	// The simulator keeps its tape between sweeps, so that repeated
-	// sweeps (an optimization loop) reuse its storage.
-	if n := min(seg, steps); len(s.tape) < n {
-		s.tape = append(s.tape, make([]stepRecord, n-len(s.tape))...)
+	// Tapes are pooled, so that repeated sweeps (an optimization loop)
+	// reuse their storage.
+	tp, _ := tapePool.Get().(*[]stepRecord)
+	if tp == nil {
+		tp = new([]stepRecord)
 	}
-	tape := s.tape
+	defer tapePool.Put(tp)
+	if n := min(seg, steps); len(*tp) < n {
+		*tp = append(*tp, make([]stepRecord, n-len(*tp))...)
+	}
+	tape := *tp
 	tapeBytes := func(n int) int {
 		b := 0
 		for k := range n {
@@ -206,7 +253,7 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 			if err := s.prime(&tape[k]); err != nil {
 				return err
 			}
-			if err := adj.step(s, &tape[k].sens); err != nil {
+			if err := adj.step(s, &tape[k]); err != nil {
 				return s.stepError(err)
 			}
 		}

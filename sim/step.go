@@ -117,8 +117,8 @@ type Sim struct {
 	q0, v0             []float64
 	vpass              [midpointPasses + 1][]float64
 	tan                *tangentSweep
-	tape               []stepRecord // the reverse sweep's, kept for reuse
-	ctl                Controller   // the simulator's own copy of the model's controller
+	passRec            *[midpointPasses + 1]*biasPrimal // when set, Step keeps its Newton–Euler passes there
+	ctl                Controller                       // the simulator's own copy of the model's controller
 	ctlIn              ControlInput
 	ctlOut             ControlOutput
 	limits             []limitRow
@@ -496,6 +496,9 @@ func (s *Sim) Step() error {
 			copy(s.rhs, s.v)
 		}
 		kin.bias(m, lay, s.rhs, s.t, s.c)
+		if s.passRec != nil {
+			s.passRec[pass].take(m, lay, kin, s.rhs)
+		}
 		for i := range s.rhs {
 			s.rhs[i] = h * (s.tau[i] - s.c[i] - (s.damp[i]+h*s.kp[i])*s.v[i])
 		}
@@ -733,23 +736,47 @@ func (s *Sim) solveContacts() error {
 	return nil
 }
 
-// buildRows fills the n contact-problem rows of the Jacobian, the trees and
-// coordinate ranges they touch, the contacts' normal velocity targets and
-// friction coefficients.
-func (s *Sim) buildRows(n int) {
+// sizeRows sizes the row workspaces for n rows.
+func (s *Sim) sizeRows(n int) {
 	nv := s.lay.nv
-	nc := len(s.contacts)
-	h := s.set.TimeStep
 	s.jac = grow(s.jac, n*nv)
 	s.z = grow(s.z, n*nv)
 	s.lambda = grow(s.lambda, n)
 	s.u = grow(s.u, n)
 	s.prob.B = grow(s.prob.B, n)
-	s.prob.Mu = grow(s.prob.Mu, nc)
+	s.prob.Mu = grow(s.prob.Mu, len(s.contacts))
 	if cap(s.rowTrees) < n {
 		s.rowTrees = make([][2]int, n)
 	}
 	s.rowTrees = s.rowTrees[:n]
+}
+
+// restoreRows sets the n rows' Jacobian from jac and their trees and
+// ranges from the contacts and limits, as buildRows left them.
+func (s *Sim) restoreRows(n int, jac []float64) {
+	s.sizeRows(n)
+	copy(s.jac, jac)
+	nc := len(s.contacts)
+	for k := range s.contacts {
+		c := &s.contacts[k]
+		for r := 0; r < 3; r++ {
+			s.rowTrees[3*k+r] = [2]int{s.treeOf(c.A), s.treeOf(c.B)}
+		}
+	}
+	for k := range s.limits {
+		t := s.treeOf(s.limits[k].body)
+		s.rowTrees[3*nc+k] = [2]int{t, t}
+	}
+	s.setRowRanges(n)
+}
+
+// buildRows fills the n contact-problem rows of the Jacobian, the trees and
+// coordinate ranges they touch, the contacts' normal velocity targets and
+// friction coefficients.
+func (s *Sim) buildRows(n int) {
+	nv := s.lay.nv
+	h := s.set.TimeStep
+	s.sizeRows(n)
 	for i := range s.jac {
 		s.jac[i] = 0
 	}
@@ -787,7 +814,7 @@ func (s *Sim) buildRows(n int) {
 	}
 	for k := range s.limits {
 		l := &s.limits[k]
-		r := 3*nc + k
+		r := 3*len(s.contacts) + k
 		s.jac[r*nv+l.dof] = l.sign
 		t := s.treeOf(l.body)
 		s.rowTrees[r] = [2]int{t, t}

@@ -265,6 +265,12 @@ func newBiasPrimal(nb, nv int) *biasPrimal {
 // acceleration) and keeps what the tangent needs.
 func (bp *biasPrimal) compute(m *Model, lay *layout, k *kinematics, v []float64, t float64) {
 	k.inverseDynamics(m, lay, v, nil, t, bp.c)
+	bp.take(m, lay, k, v)
+}
+
+// take keeps what the tangent needs of the recursion k has just run at
+// joint velocities v.
+func (bp *biasPrimal) take(m *Model, lay *layout, k *kinematics, v []float64) {
 	copy(bp.bvel, k.bvel)
 	copy(bp.acc, k.acc)
 	copy(bp.frc, k.frc)

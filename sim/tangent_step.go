@@ -70,16 +70,23 @@ func (t *tangentSweep) step(s *Sim) error {
 // velocities (v0, then the midpoints of v0 and each pass's free velocity),
 // keeping what tangents and adjoints need.
 func (s *Sim) primalPasses(passes *[midpointPasses + 1]*biasPrimal, vargs *[midpointPasses + 1][]float64) {
+	s.passVelocities(vargs)
 	for pass := range passes {
-		varg := vargs[pass]
+		passes[pass].compute(s.model, s.lay, s.kin, vargs[pass], s.t)
+	}
+}
+
+// passVelocities writes the joint velocities of the step's Newton–Euler
+// passes into vargs.
+func (s *Sim) passVelocities(vargs *[midpointPasses + 1][]float64) {
+	for pass, varg := range vargs {
 		if pass == 0 {
 			copy(varg, s.v0)
-		} else {
-			for i := range varg {
-				varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
-			}
+			continue
 		}
-		passes[pass].compute(s.model, s.lay, s.kin, varg, s.t)
+		for i := range varg {
+			varg[i] = 0.5 * (s.v0[i] + s.vpass[pass-1][i])
+		}
 	}
 }
 
