@@ -486,7 +486,12 @@ func (s *Sim) Step() error {
 	}
 
 	// Free velocity: the smooth dynamics, with velocity-product terms at
-	// the midpoint of the step.
+	// the midpoint of the step. A tangent sweep or a tape keeps the
+	// Newton–Euler passes.
+	keep := s.passRec
+	if keep == nil && s.tan != nil {
+		keep = &s.tan.passes
+	}
 	copy(s.vfree, s.v)
 	for pass := 0; pass <= midpointPasses; pass++ {
 		for i := range s.rhs {
@@ -496,8 +501,8 @@ func (s *Sim) Step() error {
 			copy(s.rhs, s.v)
 		}
 		kin.bias(m, lay, s.rhs, s.t, s.c)
-		if s.passRec != nil {
-			s.passRec[pass].take(m, lay, kin, s.rhs)
+		if keep != nil {
+			keep[pass].take(m, lay, kin, s.rhs)
 		}
 		for i := range s.rhs {
 			s.rhs[i] = h * (s.tau[i] - s.c[i] - (s.damp[i]+h*s.kp[i])*s.v[i])

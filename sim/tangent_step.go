@@ -56,8 +56,9 @@ func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
 // the start of the step, q0 and v0, the midpoint passes, contacts and the
 // solver's last factorization).
 func (t *tangentSweep) step(s *Sim) error {
-	// The primal Newton–Euler passes are the same for every column.
-	s.primalPasses(&t.passes, &t.vargs)
+	// The primal Newton–Euler passes, the same for every column, were
+	// kept by Step.
+	s.passVelocities(&t.vargs)
 	for j := range t.dq {
 		if err := t.column(s, j); err != nil {
 			return err
