@@ -72,8 +72,16 @@ func (a inertia) applyT(f force) motion {
 // barOfApply adds to ib the bar of the inertia in I·x for the force bar f̄.
 func (ib *inertia) barOfApply(x motion, f force) {
 	// n = Io ω + h × v,  f = m v − h × ω: Īo += n̄ ωᵀ.
-	n, w := f.n, x.w
-	ib.io = ib.io.Add(contact.Mat3{n.X * w.X, n.X * w.Y, n.X * w.Z, n.Y * w.X, n.Y * w.Y, n.Y * w.Z, n.Z * w.X, n.Z * w.Y, n.Z * w.Z})
+	n, w, io := f.n, x.w, &ib.io
+	io[0] += n.X * w.X
+	io[1] += n.X * w.Y
+	io[2] += n.X * w.Z
+	io[3] += n.Y * w.X
+	io[4] += n.Y * w.Y
+	io[5] += n.Y * w.Z
+	io[6] += n.Z * w.X
+	io[7] += n.Z * w.Y
+	io[8] += n.Z * w.Z
 	ib.h = r3.Add(ib.h, r3.Sub(r3.Cross(x.v, f.n), r3.Cross(x.w, f.f)))
 	ib.m += r3.Dot(f.f, x.v)
 }

@@ -25,7 +25,7 @@ const gradSteps = 100
 // BenchmarkGradient compares, in one run, a forward rollout, a forward
 // sweep with one tangent column, the reverse-sweep gradient of a 16-
 // parameter loss (the rollout that records the tape plus the backward
-// pass; with and without the factors kept on the tape), and the same
+// pass; with the full and the compact tape), and the same
 // gradient by central finite differences (2 × 16 rollouts).
 func BenchmarkGradient(b *testing.B) {
 	m, names := gradScene()
@@ -60,17 +60,17 @@ func BenchmarkGradient(b *testing.B) {
 			}
 		}
 	})
-	for _, keep := range []bool{false, true} {
+	for _, compact := range []bool{false, true} {
 		name := "ReverseSweep16"
-		if keep {
-			name += "KeepFactors"
+		if compact {
+			name += "Compact"
 		}
 		b.Run(name, func(b *testing.B) {
 			b.ReportAllocs()
 			var tape int
 			for i := 0; i < b.N; i++ {
 				s := mustSim(b, m, Settings{})
-				r, err := s.ReverseGradient(params, gradSteps, halfSquares, ReverseOptions{KeepFactors: keep})
+				r, err := s.ReverseGradient(params, gradSteps, halfSquares, ReverseOptions{Compact: compact})
 				if err != nil {
 					b.Fatal(err)
 				}

@@ -26,23 +26,24 @@ import (
 //
 // The tape keeps, per step, the start state, the midpoint velocities, the
 // post-step velocity, the contacts and joint-limit rows with the shapes'
-// poses, and the contact solve's compact sensitivity record (the solution
-// and the block-diagonal part of the reduced Jacobian, O(rows) numbers) —
-// never the solver's iterations. The backward pass recomputes the cheap
-// smooth quantities of a step (kinematics, mass matrix and its factors,
-// the controller, Newton–Euler passes at the recorded velocities) and the
-// Delassus operator, and factors the reduced Jacobian once.
-// ReverseOptions.KeepFactors keeps that factorization on the tape instead
-// (n² numbers per step): less time, more memory. With checkpointing the
-// tape keeps states every ⌈√T⌉ steps and re-records each segment during the
-// backward pass, so memory grows like √T; the gradient is bit-identical.
+// poses and the contact solve's sensitivity record (the solution and the
+// block-diagonal part of the reduced Jacobian) — never the solver's
+// iterations — and, by default, what the backward pass would otherwise
+// recompute: the factored reduced Jacobian (n² numbers for n contact rows),
+// the factored mass matrix, the Jacobian rows and the Newton–Euler passes.
+// ReverseOptions.Compact keeps only the O(rows) part; the backward pass then
+// recomputes the smooth quantities, the Delassus operator and the
+// factorization: less memory, more time. With checkpointing the tape keeps
+// states every ⌈√T⌉ steps and re-records each segment during the backward
+// pass, so memory grows like √T; the gradient is bit-identical.
 
 // ReverseOptions configure a reverse sweep.
 type ReverseOptions struct {
 	// Checkpoint trades recomputation for memory (see above).
 	Checkpoint bool
-	// KeepFactors keeps each step's factored reduced Jacobian on the tape.
-	KeepFactors bool
+	// Compact keeps only O(rows) numbers per step on the tape and
+	// recomputes the rest in the backward pass (see above).
+	Compact bool
 }
 
 // ReverseResult is the outcome of a reverse sweep.
@@ -63,7 +64,7 @@ type stepRecord struct {
 	geomPoses []contact.Pose
 	sens      contact.Sensitivity
 	solved    bool // whether the step had a contact problem
-	// With KeepFactors also: A's factors, the Jacobian rows and the
+	// Unless compact, also A's factors, the Jacobian rows and the
 	// Newton–Euler passes.
 	kept   bool
 	chol   []float64
@@ -242,7 +243,7 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 			}
 			continue
 		}
-		if err := s.recordStep(&tape[k], opt.KeepFactors); err != nil {
+		if err := s.recordStep(&tape[k], !opt.Compact); err != nil {
 			return nil, err
 		}
 	}
@@ -264,7 +265,7 @@ func (s *Sim) ReverseGradient(params []Param, steps int, dL func(q, v, gq, gv []
 			s.restoreState(checkpoints[c])
 			n := min(seg, steps-c*seg)
 			for k := 0; k < n; k++ {
-				if err := s.recordStep(&tape[k], opt.KeepFactors); err != nil {
+				if err := s.recordStep(&tape[k], !opt.Compact); err != nil {
 					return nil, fmt.Errorf("recomputing checkpoint segment %d: %w", c, err)
 				}
 			}

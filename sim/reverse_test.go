@@ -23,8 +23,8 @@ func checkReverse(t *testing.T, m *Model, names []string, steps int) {
 	checkReverseSet(t, m, Settings{}, names, steps)
 }
 
-// checkReverseSet is checkReverse with settings; it also checks that a tape
-// that keeps the factored Jacobians gives the same gradient.
+// checkReverseSet is checkReverse with settings; it also checks that the
+// compact tape gives the same gradient.
 func checkReverseSet(t *testing.T, m *Model, set Settings, names []string, steps int) {
 	t.Helper()
 	params, err := ParseParams(m, names)
@@ -43,7 +43,7 @@ func checkReverseSet(t *testing.T, m *Model, set Settings, names []string, steps
 	if err != nil {
 		t.Fatal(err)
 	}
-	kept, err := mustSim(t, m, set).ReverseGradient(params, steps, halfSquares, ReverseOptions{KeepFactors: true})
+	compact, err := mustSim(t, m, set).ReverseGradient(params, steps, halfSquares, ReverseOptions{Compact: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -55,12 +55,12 @@ func checkReverseSet(t *testing.T, m *Model, set Settings, names []string, steps
 		if ck.Gradient[i] != r {
 			t.Errorf("%s: checkpointed %.17g ≠ plain %.17g", p.Name, ck.Gradient[i], r)
 		}
-		if d := math.Abs(kept.Gradient[i] - r); !(d <= 1e-12*math.Max(1, math.Abs(r))) {
-			t.Errorf("%s: with kept factors %.17g, without %.17g", p.Name, kept.Gradient[i], r)
+		if d := math.Abs(compact.Gradient[i] - r); !(d <= 1e-12*math.Max(1, math.Abs(r))) {
+			t.Errorf("%s: with the compact tape %.17g, the full one %.17g", p.Name, compact.Gradient[i], r)
 		}
 	}
-	if plain.TapeBytes > 0 && kept.TapeBytes < plain.TapeBytes {
-		t.Errorf("tape with kept factors %d B smaller than without %d B", kept.TapeBytes, plain.TapeBytes)
+	if plain.TapeBytes > 0 && compact.TapeBytes >= plain.TapeBytes {
+		t.Errorf("compact tape %d B not smaller than the full one %d B", compact.TapeBytes, plain.TapeBytes)
 	}
 	if ck.TapeBytes >= plain.TapeBytes {
 		t.Errorf("checkpointed tape %d B not smaller than plain %d B", ck.TapeBytes, plain.TapeBytes)
@@ -160,7 +160,7 @@ func tumblingBoxes() *Model {
 func TestReverseReusesTape(t *testing.T) {
 	// A second sweep on the same simulator reuses the first one's tape and
 	// gives the same gradient: bit for bit with the same options, to
-	// rounding without the kept factors.
+	// rounding with the compact tape.
 	m := stackScene(3)
 	m.Loads = []Load{{Body: 2, Force: r3.Vec{X: 8}}}
 	params, err := ParseParams(m, []string{"mass:boxC", "gravity.z"})
@@ -168,22 +168,22 @@ func TestReverseReusesTape(t *testing.T) {
 		t.Fatal(err)
 	}
 	s := mustSim(t, m, Settings{})
-	first, err := s.ReverseGradient(params, 60, halfSquares, ReverseOptions{KeepFactors: true})
+	first, err := s.ReverseGradient(params, 60, halfSquares, ReverseOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, keep := range []bool{false, true} {
+	for _, compact := range []bool{true, false} {
 		s.Reset()
-		again, err := s.ReverseGradient(params, 60, halfSquares, ReverseOptions{KeepFactors: keep})
+		again, err := s.ReverseGradient(params, 60, halfSquares, ReverseOptions{Compact: compact})
 		if err != nil {
 			t.Fatal(err)
 		}
 		for i := range params {
-			if keep && again.Gradient[i] != first.Gradient[i] {
+			if !compact && again.Gradient[i] != first.Gradient[i] {
 				t.Errorf("%s: %.17g, first sweep %.17g", params[i].Name, again.Gradient[i], first.Gradient[i])
 			}
 			if d := math.Abs(again.Gradient[i] - first.Gradient[i]); !(d <= 1e-12*math.Max(1, math.Abs(first.Gradient[i]))) {
-				t.Errorf("keep %v: %s: %.17g, first sweep %.17g", keep, params[i].Name, again.Gradient[i], first.Gradient[i])
+				t.Errorf("compact %v: %s: %.17g, first sweep %.17g", compact, params[i].Name, again.Gradient[i], first.Gradient[i])
 			}
 		}
 	}

@@ -32,7 +32,7 @@ func runGradcheck(e *env, args []string) error {
 	duration := fl.Float64("duration", 0.1, "simulated seconds to differentiate through")
 	tol := fl.Float64("tol", 1e-5, "largest relative error accepted")
 	atol := fl.Float64("atol", 1e-7, "absolute error always accepted (for derivatives that are zero, where central differences leave only rounding)")
-	keep := fl.Bool("keep-factors", false, "keep each step's factored contact Jacobian on the reverse-sweep tape (faster backward pass, n² numbers per step of n contact rows)")
+	compact := fl.Bool("compact-tape", false, "keep only O(contact rows) numbers per step on the reverse-sweep tape and recompute the rest in the backward pass (less memory, more time)")
 	checkpoint := fl.Bool("checkpoint", false, "keep only every ⌈√T⌉-th state on the reverse-sweep tape and recompute the rest (memory grows like √T)")
 	if err := parseFlags(fl, args); err != nil {
 		return err
@@ -90,7 +90,7 @@ func runGradcheck(e *env, args []string) error {
 		return badInput(err)
 	}
 	start := time.Now()
-	rev, err := s.ReverseGradient(ps, steps, loss, sim.ReverseOptions{KeepFactors: *keep, Checkpoint: *checkpoint})
+	rev, err := s.ReverseGradient(ps, steps, loss, sim.ReverseOptions{Compact: *compact, Checkpoint: *checkpoint})
 	if err != nil {
 		return err
 	}
