@@ -188,3 +188,50 @@ func TestReverseReusesTape(t *testing.T) {
 		}
 	}
 }
+
+func TestReverseConcurrent(t *testing.T) {
+	// Sweeps on simulators of one model in parallel (pooled tapes) give
+	// the serial gradient, bit for bit.
+	m := stackScene(3)
+	m.Loads = []Load{{Body: 2, Force: r3.Vec{X: 8}}}
+	m.Materials.Pairs = []MaterialPair{{A: "test", B: "test", PairProps: PairProps{Friction: 0.6}}}
+	params, err := ParseParams(m, []string{"mass:boxB", "gravity.z", "friction:test/test"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, err := mustSim(t, m, Settings{}).ReverseGradient(params, 50, halfSquares, ReverseOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := make([]*ReverseResult, 4)
+	errs := make([]error, len(got))
+	done := make(chan int)
+	for i := range got {
+		go func() {
+			defer func() { done <- i }()
+			s, err := New(m, Settings{})
+			if err != nil {
+				errs[i] = err
+				return
+			}
+			got[i], errs[i] = s.ReverseGradient(params, 50, halfSquares, ReverseOptions{Compact: i%2 == 1})
+		}()
+	}
+	for range got {
+		<-done
+	}
+	for i, r := range got {
+		if errs[i] != nil {
+			t.Fatal(errs[i])
+		}
+		for j := range params {
+			tol := 0.0
+			if i%2 == 1 {
+				tol = 1e-12 * math.Max(1, math.Abs(want.Gradient[j]))
+			}
+			if d := math.Abs(r.Gradient[j] - want.Gradient[j]); d > tol {
+				t.Errorf("sweep %d: %s: %.17g, serial %.17g", i, params[j].Name, r.Gradient[j], want.Gradient[j])
+			}
+		}
+	}
+}
