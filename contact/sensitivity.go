@@ -6,8 +6,6 @@ import (
 	"stickslip/implicit"
 
 	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/lapack/lapack64"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -168,18 +166,8 @@ func (r *Sensitivity) factor(w *mat.SymDense) error {
 		r.apiv = make([]int, n)
 	}
 	r.apiv = r.apiv[:n]
-	g := blas64.General{Rows: n, Cols: n, Stride: n, Data: r.a}
-	r.assemble(r.a, w)
-	if !lapack64.Getrf(g, r.apiv) {
-		// As in Solver.factorInto: a tiny diagonal shift for W singular
-		// at rows whose barrier terms vanished.
-		r.assemble(r.a, w)
-		for i := range n {
-			r.a[i*n+i] += 1e-13 / r.rho
-		}
-		if !lapack64.Getrf(g, r.apiv) {
-			return fmt.Errorf("contact: Jacobian of the solution is singular")
-		}
+	if err := factorShifted(r.a, n, r.apiv, r.rho, func(a []float64) { r.assemble(a, w) }); err != nil {
+		return err
 	}
 	r.flu, r.fpiv = r.a, r.apiv
 	return nil

@@ -3,6 +3,7 @@ package contact
 import (
 	"fmt"
 
+	"gonum.org/v1/gonum/blas/blas64"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -49,21 +50,29 @@ func (s *Solver) factorJacobian() error {
 // factorInto assembles W + K from the couplings in s.hx into a and factors
 // it in place (pivots into piv).
 func (s *Solver) factorInto(a []float64, piv []int) error {
-	n := s.n
-	copy(a, s.wd[:n*n])
-	s.addBarrier(a, func(c int) *[3][3]float64 { return &s.hx[c] })
-	if !lapack64.Getrf(s.general(a), piv) {
-		// Singular W with rows whose barrier terms vanished (κ = 0 at
-		// redundant contacts): the minimum-norm-like choice of a tiny
-		// diagonal shift keeps the derivative bounded.
-		copy(a, s.wd[:n*n])
+	return factorShifted(a, s.n, piv, s.rho, func(a []float64) {
+		copy(a, s.wd[:s.n*s.n])
 		s.addBarrier(a, func(c int) *[3][3]float64 { return &s.hx[c] })
-		for i := range n {
-			a[i*n+i] += 1e-13 / s.rho
-		}
-		if !lapack64.Getrf(s.general(a), piv) {
-			return fmt.Errorf("contact: Jacobian of the solution is singular")
-		}
+	})
+}
+
+// factorShifted fills a (n×n, row major) with fill and factors it in place.
+// If it is singular — W singular at rows whose barrier terms vanished (κ = 0
+// at redundant contacts) — it refills it with a tiny diagonal shift, 1e-13/ρ
+// (ρ = 1/max W_ii), the minimum-norm-like choice that keeps the derivative
+// bounded, and factors again.
+func factorShifted(a []float64, n int, piv []int, rho float64, fill func(a []float64)) error {
+	g := blas64.General{Rows: n, Cols: n, Stride: n, Data: a[:n*n]}
+	fill(a)
+	if lapack64.Getrf(g, piv) {
+		return nil
+	}
+	fill(a)
+	for i := range n {
+		a[i*n+i] += 1e-13 / rho
+	}
+	if !lapack64.Getrf(g, piv) {
+		return fmt.Errorf("contact: Jacobian of the solution is singular")
 	}
 	return nil
 }
