@@ -211,9 +211,11 @@ func (ka *kinAdjoint) massMatrix(m *Model, lay *layout, k *kinematics, bar []flo
 		bl := &lay.bodies[i]
 		tr := &lay.trees[bl.tree]
 		blk := bar[tr.massOffset : tr.massOffset+tr.nv*tr.nv]
-		if bl.nv == 1 {
-			di := bl.vOff - tr.vOff
-			gb.armature[i] += blk[di*tr.nv+di]
+		if jointDriven(m.Bodies[i].Joint.Kind) {
+			for d := 0; d < bl.nv; d++ {
+				di := bl.vOff + d - tr.vOff
+				gb.armature[i] += blk[di*tr.nv+di]
+			}
 		}
 		for d := 0; d < bl.nv; d++ {
 			di := bl.vOff + d - tr.vOff

@@ -391,6 +391,25 @@ func gapTargetCoef(s *Sim, gap float64) float64 {
 	return -1 / h
 }
 
+// ballFrictionT is the adjoint of tangentSweep.ballFrictionTangent for the
+// ball joint of body i whose coordinates start at d.
+func (a *stepAdjoint) ballFrictionT(s *Sim, i, d int, f float64) {
+	w := s.v0[d : d+3]
+	tb, kb := a.tauBar[d:d+3], a.kdBar[d:d+3]
+	c := jointFrictionWidth
+	r := math.Sqrt(w[0]*w[0] + w[1]*w[1] + w[2]*w[2] + c*c)
+	r3 := r * r * r
+	var tw, ksum float64 // Σ τ̄_k w_k, Σ k̄d_k
+	for k := range 3 {
+		a.gb.friction[i] += -tb[k]*w[k]/r + kb[k]/r
+		tw += tb[k] * w[k]
+		ksum += kb[k]
+	}
+	for e := range 3 {
+		a.v0Bar[d+e] += f * (-tb[e]/r + w[e]*tw/r3 - w[e]*ksum/r3)
+	}
+}
+
 // control is the adjoint of the controller, actuator-limit and joint-
 // friction part of tangentSweep.column: from the bars of dτ, dkp and dkd it
 // adds to q0Bar, v0Bar, the gains' and joint friction's model bars and the
@@ -433,6 +452,10 @@ func (a *stepAdjoint) control(s *Sim) {
 		f := m.Bodies[i].Joint.Friction
 		d := lay.bodies[i].vOff
 		if lay.bodies[i].nv == 0 {
+			continue
+		}
+		if m.Bodies[i].Joint.Kind == Ball {
+			a.ballFrictionT(s, i, d, f)
 			continue
 		}
 		v := s.v0[d]

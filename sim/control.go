@@ -204,6 +204,22 @@ func (s Sum) Command(in *ControlInput, out *ControlOutput) {
 // treats implicitly.
 const jointFrictionWidth = 1e-3
 
+// ballFriction returns the smoothed Coulomb friction torque of a ball joint
+// at relative angular velocity w (body axes), −F·w/r with r = √(|w|² + c²)
+// and the width c of jointFriction, and the isotropic damping F/r with
+// which the step treats it implicitly. F/r is −∂torque/∂w across w (and at
+// w = 0); along w the exact value is smaller, F c²/r³, but an isotropic
+// damping keeps the torque's direction, so a spin does not wander off its
+// axis.
+func ballFriction(f float64, w [3]float64) (effort [3]float64, damping float64) {
+	c := jointFrictionWidth
+	r := math.Sqrt(w[0]*w[0] + w[1]*w[1] + w[2]*w[2] + c*c)
+	for d := range 3 {
+		effort[d] = -f * w[d] / r
+	}
+	return effort, f / r
+}
+
 // jointFriction returns the smoothed Coulomb friction effort at velocity v
 // and its damping −∂/∂v.
 func jointFriction(f, v float64) (effort, damping float64) {

@@ -203,6 +203,11 @@ func (k *kinematics) update(m *Model, lay *layout, q, v []float64) {
 	}
 }
 
+// jointDriven reports whether joints of kind k take armature, damping and
+// Coulomb friction: revolute, prismatic and ball joints (on a ball joint
+// they act isotropically on the relative angular velocity).
+func jointDriven(k JointKind) bool { return k == Revolute || k == Prismatic || k == Ball }
+
 // composite sums the bodies' inertias into the composite inertias of their
 // subtrees (k.ic).
 func (k *kinematics) composite(m *Model, lay *layout) {
@@ -239,9 +244,11 @@ func (k *kinematics) massMatrix(m *Model, lay *layout, mass []float64) {
 				}
 			}
 		}
-		if arm := m.Bodies[i].Joint.Armature; arm != 0 && bl.nv == 1 {
-			di := bl.vOff - tr.vOff
-			blk[di*tr.nv+di] += arm
+		if arm := m.Bodies[i].Joint.Armature; arm != 0 && jointDriven(m.Bodies[i].Joint.Kind) {
+			for d := 0; d < bl.nv; d++ {
+				di := bl.vOff + d - tr.vOff
+				blk[di*tr.nv+di] += arm
+			}
 		}
 	}
 }
@@ -300,8 +307,10 @@ func (k *kinematics) inverseDynamics(m *Model, lay *layout, v, a []float64, t fl
 		for d := 0; d < bl.nv; d++ {
 			c[bl.vOff+d] = k.s[bl.vOff+d].dot(k.frc[i])
 		}
-		if arm := m.Bodies[i].Joint.Armature; a != nil && arm != 0 && bl.nv == 1 {
-			c[bl.vOff] += arm * a[bl.vOff]
+		if arm := m.Bodies[i].Joint.Armature; a != nil && arm != 0 && jointDriven(m.Bodies[i].Joint.Kind) {
+			for d := 0; d < bl.nv; d++ {
+				c[bl.vOff+d] += arm * a[bl.vOff+d]
+			}
 		}
 		if p := bl.parent; p >= 0 {
 			k.frc[p] = k.frc[p].add(k.frc[i])

@@ -380,3 +380,48 @@ func TestSphericalPendulumStart(t *testing.T) {
 		t.Errorf("vertical angular momentum drift %.3g of %.4g kg·m²/s", worstL, lz0)
 	}
 }
+
+// ballBob is a bob hanging from the world by a ball joint, started tilted
+// and spinning, with joint damping, Coulomb friction and armature.
+func ballBob() *Model {
+	bob := Body{Name: "bob", Mass: 1.5, COM: r3.Vec{Z: -0.6},
+		Inertia: contact.Diag3(r3.Vec{X: 0.002, Y: 0.003, Z: 0.001}),
+		Joint: Joint{Name: "pivot", Kind: Ball, Parent: -1, Frame: contact.IdentityPose,
+			Rotation: contact.QuatFromAxisAngle(r3.Vec{X: 1, Y: 0.3}, 0.7), Spin: r3.Vec{X: 0.5, Z: 3},
+			Damping: 0.01, Friction: 0.02, Armature: 0.004}}
+	return &Model{Gravity: down, Bodies: []Body{bob}}
+}
+
+func TestBallJointFrictionAndArmature(t *testing.T) {
+	// A ball without gravity, spinning about a fixed axis, with Coulomb
+	// joint friction F and armature a: the constant friction torque
+	// decelerates it at F/(I + a) about the same axis (Newton–Euler for a
+	// body of isotropic inertia I: no gyroscopic torque).
+	const inertia, arm, fric, w0 = 0.01, 0.004, 0.003, 2.0
+	axis := r3.Unit(r3.Vec{X: 1, Y: -2, Z: 0.5})
+	ball := Body{Name: "ball", Mass: 1, Inertia: contact.Diag3(r3.Vec{X: inertia, Y: inertia, Z: inertia}),
+		Joint: Joint{Name: "socket", Kind: Ball, Parent: -1, Frame: contact.IdentityPose,
+			Rotation: contact.QuatFromAxisAngle(r3.Vec{Y: 1}, 0.4), Spin: r3.Scale(w0, axis), Friction: fric, Armature: arm}}
+	s := mustSim(t, &Model{Bodies: []Body{ball}}, Settings{})
+	for s.Time() < 1-1e-9 {
+		if err := s.Step(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	w := s.Body(0).Angular
+	want := w0 - fric/(inertia+arm)*s.Time()
+	if got := r3.Dot(w, axis); math.Abs(got-want) > 0.002*w0 {
+		t.Errorf("spin after %.3g s: %.6g rad/s, want %.6g", s.Time(), got, want)
+	}
+	if off := r3.Norm(r3.Sub(w, r3.Scale(r3.Dot(w, axis), axis))); off > 1e-9 {
+		t.Errorf("spin axis drifted: %.3g rad/s off the axis", off)
+	}
+}
+
+func TestSweepBallJoint(t *testing.T) {
+	// Ball-joint damping, Coulomb friction and armature, against central
+	// differences; and the reverse sweep against the forward one.
+	names := []string{"joint-friction:pivot", "armature:pivot", "damping:pivot", "mass:bob", "gravity.x"}
+	checkSweep(t, ballBob(), Settings{}, names, []float64{0.1, 0.3}, 1e-5)
+	checkReverse(t, ballBob(), names, 300)
+}

@@ -80,13 +80,16 @@ func ParseParam(m *Model, name string) (Param, error) {
 		}
 		return i, nil
 	}
-	joint := func() (int, error) {
+	joint := func(ball bool) (int, error) {
 		i := slices.IndexFunc(m.Bodies, func(b Body) bool { return b.Joint.Name == owner && b.Joint.Name != "" })
 		if i < 0 {
 			return 0, fmt.Errorf("parameter %q: no joint named %q", name, owner)
 		}
-		if k := m.Bodies[i].Joint.Kind; k != Revolute && k != Prismatic {
-			return 0, fmt.Errorf("parameter %q: joint %q is %s, not a single-DOF joint", name, owner, k)
+		switch k := m.Bodies[i].Joint.Kind; {
+		case k == Ball && !ball:
+			return 0, fmt.Errorf("parameter %q: joint %q is a ball joint; only its damping, joint friction and armature are parameters", name, owner)
+		case k != Revolute && k != Prismatic && k != Ball:
+			return 0, fmt.Errorf("parameter %q: joint %q is %s, which has no %s", name, owner, k, strings.SplitN(name, ":", 2)[0])
 		}
 		return i, nil
 	}
@@ -164,7 +167,7 @@ func ParseParam(m *Model, name string) (Param, error) {
 		p.index, err = body()
 	case base == "damping" || base == "joint-friction" || base == "armature":
 		p.kind = map[string]paramKind{"damping": pDamping, "joint-friction": pJointFriction, "armature": pArmature}[base]
-		p.index, err = joint()
+		p.index, err = joint(true)
 	case base == "kp" || base == "kd":
 		p.kind = pKp
 		if base == "kd" {
@@ -192,7 +195,7 @@ func ParseParam(m *Model, name string) (Param, error) {
 			if comp == "qd" {
 				p.kind = pStartQD
 			}
-			p.index, err = joint()
+			p.index, err = joint(false)
 			return p, err
 		default:
 			return bad("unknown start component %q", comp)

@@ -271,12 +271,24 @@ func (s *Sim) control() {
 		}
 	}
 	for i := range m.Bodies {
-		if f := m.Bodies[i].Joint.Friction; f != 0 {
-			d := s.lay.bodies[i].vOff
-			e, damp := jointFriction(f, s.v[d])
-			s.tau[d] += e
-			s.kd[d] += damp
+		f := m.Bodies[i].Joint.Friction
+		if f == 0 {
+			continue
 		}
+		bl := &s.lay.bodies[i]
+		if m.Bodies[i].Joint.Kind == Ball {
+			w := s.v[bl.vOff : bl.vOff+3]
+			e, damp := ballFriction(f, [3]float64{w[0], w[1], w[2]})
+			for d := range 3 {
+				s.tau[bl.vOff+d] += e[d]
+				s.kd[bl.vOff+d] += damp
+			}
+			continue
+		}
+		d := bl.vOff
+		e, damp := jointFriction(f, s.v[d])
+		s.tau[d] += e
+		s.kd[d] += damp
 	}
 }
 

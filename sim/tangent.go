@@ -238,9 +238,11 @@ func (kt *kinTangent) massMatrix(m *Model, lay *layout, k *kinematics, dm *model
 				}
 			}
 		}
-		if bl.nv == 1 {
-			di := bl.vOff - tr.vOff
-			blk[di*tr.nv+di] += dm.armature[i]
+		if jointDriven(m.Bodies[i].Joint.Kind) {
+			for d := 0; d < bl.nv; d++ {
+				di := bl.vOff + d - tr.vOff
+				blk[di*tr.nv+di] += dm.armature[i]
+			}
 		}
 	}
 }

@@ -138,6 +138,10 @@ func (t *tangentSweep) column(s *Sim, j int) error {
 		if f == 0 && df == 0 {
 			continue
 		}
+		if m.Bodies[i].Joint.Kind == Ball {
+			t.ballFrictionTangent(s, lay.bodies[i].vOff, f, df, dv)
+			continue
+		}
 		d := lay.bodies[i].vOff
 		v := s.v0[d]
 		w := jointFrictionWidth
@@ -190,6 +194,22 @@ func (t *tangentSweep) column(s *Sim, j int) error {
 	}
 	t.integrate(s, dq, dv)
 	return nil
+}
+
+// ballFrictionTangent adds the tangents of ballFriction's torque and
+// damping at the ball joint whose coordinates start at d, for friction f
+// with tangent df and velocity tangent dv.
+func (t *tangentSweep) ballFrictionTangent(s *Sim, d int, f, df float64, dv []float64) {
+	w, dw := s.v0[d:d+3], dv[d:d+3]
+	c := jointFrictionWidth
+	r := math.Sqrt(w[0]*w[0] + w[1]*w[1] + w[2]*w[2] + c*c)
+	r3 := r * r * r
+	wd := w[0]*dw[0] + w[1]*dw[1] + w[2]*dw[2]
+	for k := range 3 {
+		// τ_k = −F w_k / r,  kd = F/r.
+		t.dtau[d+k] += -df*w[k]/r - f*dw[k]/r + f*w[k]*wd/r3
+		t.dkd[d+k] += df/r - f*wd/r3
+	}
 }
 
 // dampOf returns the tangent of the viscous damping at coordinate i.
