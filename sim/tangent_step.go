@@ -24,18 +24,14 @@ type tangentSweep struct {
 	djac, dbeff, dlam, dmu, w, tmp         []float64
 }
 
-func newTangents(s *Sim, params []Param) *tangentSweep { return newTangentColumns(s, 0, params) }
-
-// newTangentColumns returns a sweep with nState columns that carry no
-// model tangent (state directions) followed by one column per parameter.
-func newTangentColumns(s *Sim, nState int, params []Param) *tangentSweep {
+// newTangents returns a sweep with one column per parameter, seeded in the
+// simulator's current state.
+func newTangents(s *Sim, params []Param) *tangentSweep {
 	nq, nv := s.lay.nq, s.lay.nv
 	t := &tangentSweep{params: params, kt: newKinTangent(len(s.model.Bodies), nv)}
-	for j := 0; j < nState+len(params); j++ {
+	for j := range params {
 		dm := newModelTangent(s.model, nq, nv)
-		if j >= nState {
-			dm.seed(s, &params[j-nState])
-		}
+		dm.seed(s, &params[j])
 		t.dm = append(t.dm, dm)
 		t.dq = append(t.dq, append([]float64(nil), dm.startQ...))
 		t.dv = append(t.dv, append([]float64(nil), dm.startV...))
@@ -321,7 +317,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 			}
 			dtarget = -de*c.pre - c.Restitution*dpre
 		} else {
-			dtarget = t.gapTargetTangent(s, c.Point.Gap, dgap)
+			dtarget = gapTargetCoef(s, c.Point.Gap) * dgap
 		}
 		t.dbeff[3*k] = -dtarget
 		t.dbeff[3*k+1], t.dbeff[3*k+2] = 0, 0
@@ -334,7 +330,7 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 		l := &s.limits[k]
 		bl := &s.lay.bodies[l.body]
 		dgap := l.sign * dq[bl.qOff]
-		t.dbeff[3*nc+k] = -t.gapTargetTangent(s, l.gap, dgap)
+		t.dbeff[3*nc+k] = -gapTargetCoef(s, l.gap) * dgap
 	}
 	// z = v⁺ − v_free;  w = dJᵀλ − dA z.
 	for i := range t.x {
@@ -370,10 +366,6 @@ func (t *tangentSweep) contactTangent(s *Sim, dq []float64, dm *modelTangent, n 
 		t.dvplus[d] = t.dvfree[d] + t.w[d]
 	}
 	return nil
-}
-
-func (t *tangentSweep) gapTargetTangent(s *Sim, gap, dgap float64) float64 {
-	return gapTargetCoef(s, gap) * dgap
 }
 
 // integrate propagates the tangent through q⁺ = q ⊕ h v⁺, writing the
