@@ -356,13 +356,7 @@ func cholForward(l []float64, n int, x []float64) {
 
 // cholSolve solves L Lᵀ x = b in place (x holds b on entry).
 func cholSolve(l []float64, n int, x []float64) {
-	for i := 0; i < n; i++ {
-		s := x[i]
-		for k := 0; k < i; k++ {
-			s -= l[i*n+k] * x[k]
-		}
-		x[i] = s / l[i*n+i]
-	}
+	cholForward(l, n, x)
 	for i := n - 1; i >= 0; i-- {
 		s := x[i]
 		for k := i + 1; k < n; k++ {
