@@ -12,13 +12,13 @@ import (
 // Sensitivity is the compact record of a solved problem that its
 // derivatives need once the Solver has moved on to other problems: the
 // solution λ and the block-diagonal part K of the reduced Jacobian W + K of
-// the optimality conditions (see JVP), 10 numbers per contact and one per
+// the optimality conditions (see JVP), 9 numbers per contact and one per
 // unilateral row, with the friction coefficients. It does not hold W (n²
 // numbers), which the caller supplies again when it differentiates; a
 // reverse sweep through a long rollout keeps one Sensitivity per step and
 // never the solver's iterations.
 //
-// With Factor the record also keeps the LU factors of W + K (n² numbers
+// Recorded with factor set, it also keeps the LU factors of W + K (n² numbers
 // and n pivots), so that later VJPs need no factorization: memory traded
 // for time.
 type Sensitivity struct {
@@ -32,7 +32,7 @@ type Sensitivity struct {
 	// row.
 	k []float64
 
-	lu  []float64 // LU factors of W + K when kept (Factor)
+	lu  []float64 // LU factors of W + K when kept (Record with factor)
 	piv []int
 	// workspaces, and the factors in use (lu or a)
 	a, theta, work []float64
